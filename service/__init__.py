@@ -1,0 +1,1 @@
+"""Boundwise service side: the HTTP edge (Flask + marshmallow) and the `boundwise` command."""
