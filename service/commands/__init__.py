@@ -1,0 +1,1 @@
+"""Subcommands of the `boundwise` command, one module per verb."""
