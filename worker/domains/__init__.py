@@ -55,7 +55,7 @@ def kinds() -> dict[str, DomainKind]:
         if isinstance(kind, DomainKind):
             found[kind.name] = kind
     for ep in entry_points(group=ENTRY_POINT_GROUP):
-        if ep.name in found:
+        if ep.name in found or ep.module in _BUILTINS:
             continue
         try:
             kind = ep.load()
