@@ -66,7 +66,7 @@ class GridSchema(StrictSchema):
     corner_cutting = StrictBool(load_default=False)
     start = CellField(required=True)
     goals = fields.List(CellField(), required=True, validate=validate.Length(
-        min=1, max=MAX_GOALS, error=f"must list between 1 and {MAX_GOALS} goal cells"))
+        min=1, max=MAX_GOALS, error=f"must list at least 1 and at most {MAX_GOALS} goal cells"))
 
     @validates_schema
     def _one_layout(self, data: dict[str, Any], **kwargs: Any) -> None:
