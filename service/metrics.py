@@ -170,3 +170,16 @@ def child_exit(server: Any, worker: Any) -> None:
         from prometheus_client import multiprocess
 
         multiprocess.mark_process_dead(worker.pid)
+
+
+def serve_worker_metrics(port: int, addr: str = "0.0.0.0") -> None:
+    """Serve this machine's multiprocess samples on ``port`` from a worker process (no Flask).
+
+    For deployments where the workers share no directory with an API process
+    (one pod per worker): the scraper reads each worker pod directly. Queue
+    depths are left to the API's ``/metrics``, so they are not counted twice.
+    """
+    from prometheus_client import start_http_server
+
+    start_http_server(port, addr=addr, registry=registry_for_scrape())
+    logger.info("worker metrics on %s:%d", addr, port)
