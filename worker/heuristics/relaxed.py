@@ -77,10 +77,11 @@ class RelaxedTask:
 
 
 def prune_unreachable(task: GroundTask) -> GroundTask:
-    """Drop the actions the delete relaxation cannot reach; note a goal proven unreachable.
+    """Drop unreachable and no-op actions; note a goal proven unreachable.
 
     A fact outside the relaxed closure of the initial state is false in every
-    reachable state, so an action needing one never applies. A goal fact
+    reachable state, so an action needing one never applies; an action that
+    deletes nothing and adds only its own preconditions changes no state. A goal fact
     outside the closure, or a negated goal fact that holds initially and that
     no reachable action deletes, makes the task infeasible: that is recorded in
     ``infeasible`` rather than raised, because it is a proven answer.
@@ -95,6 +96,8 @@ def prune_unreachable(task: GroundTask) -> GroundTask:
         changed = False
         rest = []
         for a in pending:
+            if not a.delete and set(a.add) <= set(a.pre):
+                continue  # changes no state it applies in (e.g. a move from a place to itself)
             if all(reached[f] for f in a.pre):
                 kept.append(a)
                 for f in a.add:
