@@ -79,7 +79,7 @@ class BudgetSchema(_Strict):
 class JobRequestSchema(_Strict):
     problem = fields.Raw(required=True)
     search = fields.Nested(SearchSchema, load_default=lambda: SearchConfig())
-    budget = fields.Nested(BudgetSchema, load_default=dict)
+    budget = fields.Nested(BudgetSchema, load_default=lambda: BudgetSchema().load({}))
     queue = fields.String(load_default="default", validate=validate.OneOf(["high", "default"]))
     retries = StrictInt(load_default=1, validate=validate.Range(min=0, max=10))
 
