@@ -28,9 +28,10 @@ The exact tree bound costs one MST (quadratic in |R|) per new set, that is
 one per successor. With more than ``EXACT_MAX_LEFT`` tasks left it is
 loosened to one MST per expansion: any spanning tree of R plus one edge to
 ``last`` spans R + {last}, so MST'(R) >= MST'(R + {last}) - min_v w'(last, v),
-and R + {last} is the same set for all successors of one state. Set
-``tree=False`` for the cheapest bound: each remaining task's cheapest entry
-from anywhere, linear per state.
+and R + {last} is the same set for all successors of one state.
+
+``node_cost`` adds a fixed amount per remaining task (durations, under
+``makespan``) to every bound.
 """
 
 from __future__ import annotations
@@ -120,7 +121,6 @@ class ChangeoverBound:
         closed: bool,
         *,
         node_cost: Sequence[float] | None = None,
-        tree: bool = True,
     ) -> None:
         n1 = len(matrix)
         # a fixed cost every remaining task adds (its duration under makespan)
@@ -130,19 +130,16 @@ class ChangeoverBound:
         self.closed = closed
         self.c = c
         self.symmetric = all(c[i][j] == c[j][i] for i in range(n1) for j in range(i))
-        self.tree = tree
-        self.assign = self.tree and not self.symmetric
+        self.assign = not self.symmetric
         self.full = (1 << (n1 - 1)) - 1
         self._memo: dict[int, tuple] = {}
         self._trees: dict[int, tuple[list[int], float]] = {}
         self._memo_max = max(1024, min(1 << 16, _MEMO_CELLS // n1))
         self.sym = [[min(c[i][j], c[j][i]) for j in range(n1)] for i in range(n1)]
-        self.pi = self._tune_penalties() if self.tree and n1 > 2 else [0.0] * n1
+        self.pi = self._tune_penalties() if n1 > 2 else [0.0] * n1
         pi = self.pi
         self._wp = [[self.sym[i][j] + pi[i] + pi[j] for j in range(n1)] for i in range(n1)]
         self._lead = [[c[i][j] + pi[j] for j in range(n1)] for i in range(n1)]
-        # cheapest way into each task from anywhere: the fallback bound
-        self._enter = [min((c[i][r] for i in range(n1) if i != r), default=0.0) for r in range(n1)]
 
     # -- the bound ---------------------------------------------------------
 
@@ -155,12 +152,6 @@ class ChangeoverBound:
         c = self.c
         if mask == self.full:
             return c[last][0] if self.closed else 0.0
-        if not self.tree:
-            rest = self.remaining(mask)
-            h = math.fsum(self._enter[r] for r in rest)
-            if self.node_cost is not None:
-                h += math.fsum(self.node_cost[r] for r in rest)
-            return h + min(c[r][0] for r in rest) if self.closed else h
         if last and self.n1 - 1 - mask.bit_count() > EXACT_MAX_LEFT:
             return self._inherited(last, mask)
         entry = self._memo.get(mask)
