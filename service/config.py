@@ -5,7 +5,7 @@ reads them all, refuses a bad value with a message naming the variable, and adds
 the limit settings read by ``service.limits`` (``LimitSettings.from_env``), so a
 process has one ``Config`` and fails at start rather than on its first request.
 
-Every variable (``service.limits`` reads the ones marked *limits*):
+Every variable (``service.limits`` checks the ones marked *limits*; ``LIMIT_SETTINGS``):
 
 ==================================  ===========================  ==========================================================
 variable                            default                      meaning
@@ -58,7 +58,7 @@ from service.limits import LimitSettings
 
 logger = logging.getLogger(__name__)
 
-__all__ = ["Config", "ConfigError", "Setting", "SETTINGS", "load"]
+__all__ = ["Config", "ConfigError", "Setting", "SETTINGS", "LIMIT_SETTINGS", "load"]
 
 
 class ConfigError(ValueError):
@@ -174,6 +174,21 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("METRICS_TOKEN", "", _text, "bearer token /metrics requires when set", "metrics_token"),
 )
 
+# Read by ``service.limits.LimitSettings.from_env``, which checks them; listed here
+# with their defaults so the table is complete and every default is spelled out.
+LIMIT_SETTINGS: tuple[Setting, ...] = (
+    Setting("BOUNDWISE_RATE_LIMITS", "on", _text, "off disables rate limiting", ""),
+    Setting("BOUNDWISE_RATE_LIMIT_SUBMIT", "60/minute", _text, "submits and cancels per key", ""),
+    Setting("BOUNDWISE_RATE_LIMIT_READ", "1200/minute", _text, "reads per key", ""),
+    Setting("BOUNDWISE_MAX_BODY_BYTES", "2097152", _text, "largest request body (413 over it)", ""),
+    Setting("BOUNDWISE_MAX_RUNNING_JOBS", "20", _text, "jobs a tenant may have queued or running", ""),
+    Setting("BOUNDWISE_MAX_TIME_S", "300", _text, "largest time budget", ""),
+    Setting("BOUNDWISE_MAX_EXPANSIONS", "200000000", _text, "largest expansions budget (and the default)", ""),
+    Setting("BOUNDWISE_MAX_STATES", "20000000", _text, "largest stored-states budget (and the default)", ""),
+    Setting("BOUNDWISE_MAX_SIZES", "", _text, "JSON object of problem size caps by name", ""),
+    Setting("BOUNDWISE_TENANT_CAPS", "", _text, "JSON per-tenant cap overrides", ""),
+)
+
 
 @dataclass(frozen=True, slots=True)
 class Config:
@@ -229,8 +244,9 @@ def load(env: Mapping[str, str] | None = None) -> Config:
     if values["lost_after_s"] < 2 * values["heartbeat_s"]:
         raise ConfigError("BOUNDWISE_LOST_AFTER_S", "must be at least twice BOUNDWISE_HEARTBEAT_S, "
                           "or a live job could be reported lost between two heartbeats")
+    limit_env = {x.name: env.get(x.name) or x.default for x in LIMIT_SETTINGS}
     try:
-        values["limits"] = LimitSettings.from_env(env)
+        values["limits"] = LimitSettings.from_env(limit_env)
     except ValueError as err:
         name = str(err).split(":", 1)[0]
         raise ConfigError(name, str(err).split(":", 1)[-1].strip()) from None
