@@ -16,6 +16,10 @@ Optional attributes a space may offer (the engine looks them up with getattr):
 ``dense_size``
     an int N: every state is an int in ``range(N)``, so the engine may keep its
     tables in flat arrays instead of dicts.
+``goal_set``
+    a set (or frozenset) of goal states, when the goal is a finite list of
+    states: the engine then tests membership inline instead of calling
+    ``is_goal`` (``is_goal`` must agree with it).
 ``kernel_spec()``
     plain data describing the space for a compiled search kernel (see
     ``worker.engine``); a space without it is searched in pure Python.

@@ -172,7 +172,7 @@ class PythonCore:
         """Walk parent pointers from ``s`` back to the start, then add ``t``."""
         parent = self._parent
         chain = [t, s]
-        limit = self.stored + 2
+        limit = len(parent) + 2
         while s != self._start:
             s = parent[s]
             if (isinstance(s, int) and s < 0 and isinstance(parent, array)) or len(chain) > limit:
@@ -256,6 +256,8 @@ class PythonCore:
         incons = self._incons
         share = self._share_every if fheap is not None else 0
         counter = self._counter
+        goal_set = getattr(space, "goal_set", None)
+        stored = self.stored
         generated = 0
         done = 0
         improved = False
@@ -295,7 +297,7 @@ class PythonCore:
                     gold = g_tab[t]
                     if g2 >= gold * keep:
                         continue
-                    if is_goal(t):
+                    if (t in goal_set) if goal_set is not None else is_goal(t):
                         path = self._rebuild_path(s, t)
                         self._set_incumbent(min(g2, path.cost), path)
                         cutoff = self._cutoff
@@ -305,11 +307,11 @@ class PythonCore:
                     ft = g2 + ht
                     if ft >= cutoff:
                         continue
-                    if gold == INF:
-                        self.stored += 1
                     g_tab[t] = g2
                     parent[t] = s
-                    if closed[t]:
+                    if gold == INF:
+                        stored += 1
+                    elif closed[t]:
                         if defer:
                             incons[t] = ht
                             if fheap is not None:
@@ -327,6 +329,7 @@ class PythonCore:
                     break
         finally:
             self._counter = counter
+            self.stored = stored
             self.expansions += done
             self.generated += generated
         if improved:
