@@ -42,14 +42,14 @@ __all__ = ["Caps", "LimitSettings", "RunningSlots", "apply_caps", "check_sizes",
 # Size names reported by the built-in domains, and a cap for each that keeps a
 # single job within a few hundred MB of worker memory.
 DEFAULT_SIZE_CAPS: dict[str, int] = {
-    "cells": 4_000_000,
-    "nodes": 1_000_000,
-    "edges": 5_000_000,
-    "tasks": 64,
-    "tiles": 48,
-    "atoms": 20_000,
-    "actions": 200_000,
-    "objects": 2_000,
+    "cells": 4_000_000,  # grid
+    "nodes": 1_000_000,  # graph
+    "edges": 5_000_000,  # graph
+    "tasks": 100,  # sequencing
+    "tiles": 49,  # sliding-tile: up to 7 x 7
+    "facts": 20_000,  # strips
+    "actions": 200_000,  # strips
+    "characters": 1_000_000,  # pddl: domain and problem text together
 }
 # A job may wait in the queue; its slot is only a safety net past this long.
 SLOT_SLACK_S = 3600.0
