@@ -18,7 +18,9 @@ consistent, so a search using it must reopen closed states.
 Two details keep it right and finite:
 
 - each h_max pass runs to its fixpoint, not to the first time the goal is
-  reached: the pcf of actions beyond the goal shapes the cut;
+  reached: the pcf of actions beyond the goal shapes the cut; after the first
+  pass the values are brought down incrementally from the cut actions (costs
+  only fall), which gives the same fixpoint without redoing every fact;
 - costs are exact integers (see ``worker.heuristics.task``), so every round
   brings at least one cut action to exactly zero and the loop ends after at
   most as many rounds as there are actions.
@@ -26,6 +28,7 @@ Two details keep it right and finite:
 
 from __future__ import annotations
 
+import heapq
 import math
 from collections.abc import Sequence
 
@@ -61,27 +64,27 @@ class LMCut:
         n_facts = r.n_facts
         cost = list(r.cost)
         pcf = [-1] * len(cost)
-        pre_of, add, achievers = r.pre_of, r.add, r.achievers
+        add, achievers = r.add, r.achievers
         goal = r.goal_fact
         sources = list(facts)
         sources.append(r.true_fact)
-        run = self._hmax.run
+        value, _ = self._hmax.run(facts, cost, pcf=pcf)
+        if value[goal] >= UNREACHED:
+            return None
+        # by_pcf[f]: the actions whose precondition choice is f (the justification graph's out-edges).
+        by_pcf: list[list[int]] = [[] for _ in range(n_facts)]
+        for a, p in enumerate(pcf):
+            if p >= 0:
+                by_pcf[p].append(a)
         total = 0
-        while True:
-            value, _ = run(facts, cost, pcf=pcf)
-            hg = value[goal]
-            if hg >= UNREACHED:
-                return None
-            if hg == 0:
-                return total
+        while value[goal] > 0:
             zone = bytearray(n_facts)
             zone[goal] = 1
             stack = [goal]
             while stack:
-                g = stack.pop()
-                for a in achievers[g]:
+                for a in achievers[stack.pop()]:
                     p = pcf[a]
-                    if p >= 0 and cost[a] == 0 and not zone[p]:
+                    if p >= 0 and not cost[a] and not zone[p]:
                         zone[p] = 1
                         stack.append(p)
             seen = bytearray(n_facts)
@@ -89,16 +92,13 @@ class LMCut:
                 seen[f] = 1
             stack = list(sources)
             cut: list[int] = []
-            in_cut = set()
+            in_cut = bytearray(len(cost))
             while stack:
-                f = stack.pop()
-                for a in pre_of[f]:
-                    if pcf[a] != f:
-                        continue
+                for a in by_pcf[stack.pop()]:
                     for e in add[a]:
                         if zone[e]:
-                            if a not in in_cut:
-                                in_cut.add(a)
+                            if not in_cut[a]:
+                                in_cut[a] = 1
                                 cut.append(a)
                         elif not seen[e]:
                             seen[e] = 1
@@ -110,3 +110,47 @@ class LMCut:
                 cost[a] -= m
             total += m
             landmarks.append((m, cut))
+            self._lower(value, pcf, by_pcf, cost, cut)
+        return total
+
+    def _lower(self, value: list[int], pcf: list[int], by_pcf: list[list[int]], cost: list[int],
+               cut: list[int]) -> None:
+        """Bring h_max values and precondition choices up to date after the cut actions got cheaper.
+
+        Costs only fall, so values only fall: a decrease-only Dijkstra from the
+        cut actions' effects reaches the new fixpoint without redoing the rest.
+        Reachability does not depend on costs, so unreachable actions stay so.
+        """
+        r = self.relaxed
+        pre, add = r.pre, r.add
+        heap: list[tuple[int, int]] = []
+        push, pop = heapq.heappush, heapq.heappop
+        for a in cut:
+            nv = value[pcf[a]] + cost[a]
+            for e in add[a]:
+                if nv < value[e]:
+                    value[e] = nv
+                    push(heap, (nv, e))
+        while heap:
+            v, f = pop(heap)
+            if v != value[f]:
+                continue
+            # Only actions whose largest precondition was f can get cheaper.
+            moved = []
+            for a in by_pcf[f]:
+                best, bv = f, v
+                for q in pre[a]:
+                    if value[q] > bv:
+                        best, bv = q, value[q]
+                if best != f:
+                    pcf[a] = best
+                    by_pcf[best].append(a)
+                    moved.append(a)
+                nv = bv + cost[a]
+                for e in add[a]:
+                    if nv < value[e]:
+                        value[e] = nv
+                        push(heap, (nv, e))
+            if moved:
+                keep = set(moved)
+                by_pcf[f] = [a for a in by_pcf[f] if a not in keep]
