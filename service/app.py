@@ -19,6 +19,8 @@ from typing import Any
 
 import redis as redis_lib
 from flask import Flask
+from redis.backoff import ExponentialBackoff
+from redis.retry import Retry
 
 from service import auth, errors, limits, logs, metrics
 from service.config import Config, load
@@ -44,8 +46,10 @@ class Service:
 
 def connect(url: str) -> Any:
     """Return a Redis client for the API (bytes replies, as RQ needs; short connect timeout)."""
-    # socket_timeout stays above the longest blocking read (2 s slices) with room to spare.
-    return redis_lib.Redis.from_url(url, socket_connect_timeout=2, socket_timeout=10, health_check_interval=30)
+    # socket_timeout stays above the longest blocking read (2 s slices) with room to spare;
+    # two quick retries ride out a blip, and an outage answers 503 within a second.
+    return redis_lib.Redis.from_url(url, socket_connect_timeout=2, socket_timeout=10, health_check_interval=30,
+                                    retry=Retry(ExponentialBackoff(cap=0.2, base=0.02), 2))
 
 
 def _logs(app: Flask, svc: Service) -> None:
@@ -87,7 +91,7 @@ def create_app(config: Config | Mapping[str, str] | None = None, *, redis: Any =
         slots=limits.RunningSlots(connection),
         limits_storage=cfg.redis_url if redis is None else "memory://",
     )
-    app = Flask("boundwise")
+    app = Flask("boundwise", static_folder=None)
     app.json.sort_keys = False  # type: ignore[attr-defined]
     app.config.update(
         AUTH_REQUIRED=cfg.auth_required,
