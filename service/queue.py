@@ -1,10 +1,10 @@
 """Keep jobs in Redis and put them on RQ queues: the one module of the API that talks to either.
 
 ``JobStore`` writes a submitted job's state hash and enqueues it in one
-transaction, reads a job back (calling it ``lost`` when it is running but its
-heartbeat is gone, and writing that so it sticks), waits for a newer revision
-with a blocking stream read, follows the event stream, cancels, and answers
-the readiness check. Key names and statuses come from ``worker.keys``, which
+transaction, reads a job back (a running job whose heartbeat is gone goes to
+``worker.reaper``: reported lost, and queued again while its retries allow),
+waits for a newer revision with a blocking stream read, follows the event
+stream, cancels, and answers the readiness check. Key names and statuses come from ``worker.keys``, which
 the worker side shares.
 """
 
@@ -28,6 +28,7 @@ from worker.keys import (
     FINAL, JOB_FUNCTION, QUEUES, EventType, JobStatus, dumps, idempotency_key, job_keys, new_job_id, text,
     valid_job_id,
 )
+from worker.reaper import Reaper
 from worker.request import JobRequest
 
 logger = logging.getLogger(__name__)
@@ -48,15 +49,6 @@ if s == 'running' then
   return 'cancelling'
 end
 return s
-"""
-
-# KEYS: state, alive, events.  ARGV: now, final event JSON.  Running + no heartbeat -> lost.
-_MARK_LOST = """
-if redis.call('HGET', KEYS[1], 'status') ~= 'running' then return 0 end
-if redis.call('EXISTS', KEYS[2]) == 1 then return 0 end
-redis.call('HSET', KEYS[1], 'status', 'lost', 'finished_at', ARGV[1])
-redis.call('XADD', KEYS[3], '*', 'type', 'finished', 'data', ARGV[2])
-return 1
 """
 
 # The longest a single blocking read may take, so a stale heartbeat is noticed while waiting.
@@ -104,6 +96,7 @@ class JobRecord:
     retries: int
     error: dict[str, Any] | None = None
     backend: str | None = None
+    attempt_log: tuple[dict[str, Any], ...] = ()
 
     @property
     def final(self) -> bool:
@@ -142,6 +135,7 @@ class JobRecord:
             retries=int(raw.get("retries") or 0),
             error=loads("error", None),
             backend=raw.get("backend") or None,
+            attempt_log=tuple(loads("attempt_log", [])),
         )
 
 
@@ -167,7 +161,7 @@ class JobStore:
         self.clock = clock
         self.queues = {name: Queue(name, connection=redis) for name in QUEUES}
         self._cancel = redis.register_script(_CANCEL)
-        self._mark_lost = redis.register_script(_MARK_LOST)
+        self.reaper = Reaper(redis)
 
     # -- submit -------------------------------------------------------------------------------
 
@@ -296,14 +290,9 @@ class JobStore:
         if not raw or "status" not in raw:
             return None, cursor
         if raw["status"] == JobStatus.RUNNING.value and not alive:
-            record = JobRecord.parse(job_id, raw)
-            event = {"status": JobStatus.LOST.value, "stop_reason": None, "revision": record.revision,
-                     "cost": (record.best or {}).get("cost"), "proven_optimal": False, "proven_infeasible": False}
-            keys = job_keys(job_id)
-            if self._mark_lost(keys=[keys.state, keys.alive, keys.events], args=[_now_iso(), dumps(event)]):
-                logger.warning("job %s lost its worker (no heartbeat for %.1f s); marked lost",
-                               job_id, self.config.lost_after_s)
-                metrics.record_lost()
+            # The worker died: the reaper reports the attempt lost and, while the
+            # request's retries allow, queues the job again (one transaction).
+            self.reaper.reap(job_id)
             raw, alive, cursor = self._read(job_id)
         return JobRecord.parse(job_id, raw), cursor
 

@@ -25,6 +25,7 @@ from marshmallow import RAISE, Schema, fields, missing, validate
 
 from service.queue import JobRecord
 from worker.domains.base import DomainKind
+from worker.reaper import attempt_history
 
 logger = logging.getLogger(__name__)
 
@@ -198,7 +199,7 @@ class JobSchema(Schema):
     stop_reason = fields.String(allow_none=True)
     proven_optimal = fields.Boolean()
     proven_infeasible = fields.Boolean()
-    attempts = fields.Integer()
+    attempts = fields.List(fields.Dict())
     error = fields.Dict(allow_none=True)
     created_at = fields.String()
     started_at = fields.String(allow_none=True)
@@ -234,7 +235,8 @@ def job_document(record: JobRecord) -> dict[str, Any]:
         "stop_reason": record.stop_reason,
         "proven_optimal": record.proven_optimal,
         "proven_infeasible": record.proven_infeasible,
-        "attempts": record.attempts,
+        "attempts": attempt_history(record.attempt_log, record.attempts, record.status.value, record.started_at,
+                                    record.finished_at, record.revision, record.best),
         "error": record.error,
         "created_at": record.created_at,
         "started_at": record.started_at,

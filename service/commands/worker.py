@@ -71,6 +71,12 @@ def run(args: argparse.Namespace) -> int:
     cls = SimpleWorker if args.no_fork else Worker
     worker = cls([Queue(q, connection=connection) for q in queues], connection=connection, name=args.name)
     logger.info("worker %s serving %s", worker.name, ", ".join(queues))
+    # Every worker watches for jobs whose worker died (one sweep at a time across
+    # all of them): each is reported lost and queued again while retries remain.
+    from worker.reaper import Reaper
+
+    Reaper(redis.Redis.from_url(cfg.redis_url, socket_connect_timeout=5, socket_timeout=5)).start(
+        period_s=cfg.heartbeat_s, owner=worker.name)
     worker.work(burst=args.burst, logging_level=cfg.log_level)
     return 0
 
