@@ -12,6 +12,7 @@ there are many. A cell's node number is its index ``row * width + col``.
 from libc.math cimport sqrt
 from libc.stdint cimport int64_t, uint64_t
 from libc.stdlib cimport calloc, free, malloc
+from libc.string cimport memcpy
 
 from worker.engine.kernels._search cimport SearchKernel
 
@@ -48,11 +49,12 @@ cdef class GridKernel(SearchKernel):
     def __init__(self, space, config, spec):
         cdef int64_t w = int(spec["width"]), h = int(spec["height"]), r, c, k
         cdef bytes cost = bytes(spec["cost"])
+        cdef const unsigned char* src
         cdef double sqrt2 = sqrt(2.0)
         goals = [int(x) for x in spec["goals"]]
         if w < 1 or h < 1 or len(cost) != w * h or not goals:
             raise ValueError("grid kernel spec: inconsistent sizes")
-        if max(cost) > 9 or spec["moves"] not in (4, 8):
+        if cost.translate(None, bytes(range(10))) or spec["moves"] not in (4, 8):
             raise ValueError("grid kernel spec: costs must be 0-9 and moves 4 or 8")
         self.width, self.height, self.pw = w, h, w + 2
         self.eight = spec["moves"] == 8
@@ -69,9 +71,9 @@ cdef class GridKernel(SearchKernel):
         self.goal_c = <int64_t*>malloc(self.ngoals * sizeof(int64_t))
         if self.pcost == NULL or self.goal == NULL or self.goal_r == NULL or self.goal_c == NULL:
             raise MemoryError("no memory for the grid tables")
+        src = cost
         for r in range(h):
-            for c in range(w):
-                self.pcost[(r + 1) * self.pw + c + 1] = cost[r * w + c]
+            memcpy(&self.pcost[(r + 1) * self.pw + 1], &src[r * w], w)
         for k, g in enumerate(goals):
             if not 0 <= g < w * h:
                 raise ValueError("grid kernel spec: goal outside the grid")

@@ -1,5 +1,5 @@
 # cython: language_level=3
-# Binary heaps of plain C records for the compiled search kernels.
+# Four-ary heaps of plain C records for the compiled search kernels.
 #
 # Two orders, both total (the push counter is unique), so the sequence of pops
 # depends only on what was pushed, never on how the heap arranges it; that is
@@ -8,6 +8,9 @@
 # - the open list: (key, -g, counter), i.e. least g + w*h, ties to larger g,
 #   then to the earlier push;
 # - the f-heap of the lower bound: (f, counter).
+#
+# Four children per node: half the levels of a binary heap, and the children
+# sit next to each other in memory, which is what counts on heaps of millions.
 
 from libc.stdint cimport int64_t
 from libc.stdlib cimport realloc
@@ -89,7 +92,7 @@ cdef inline void open_sift_up(OpenHeap* h, Py_ssize_t i) noexcept nogil:
     cdef OpenItem item = h.items[i]
     cdef Py_ssize_t parent
     while i > 0:
-        parent = (i - 1) >> 1
+        parent = (i - 1) >> 2
         if not open_less(&item, &h.items[parent]):
             break
         h.items[i] = h.items[parent]
@@ -100,17 +103,22 @@ cdef inline void open_sift_up(OpenHeap* h, Py_ssize_t i) noexcept nogil:
 cdef inline void open_sift_down(OpenHeap* h, Py_ssize_t i) noexcept nogil:
     cdef OpenItem item = h.items[i]
     cdef Py_ssize_t n = h.size
-    cdef Py_ssize_t child
+    cdef Py_ssize_t child, best, last
     while True:
-        child = 2 * i + 1
+        child = 4 * i + 1
         if child >= n:
             break
-        if child + 1 < n and open_less(&h.items[child + 1], &h.items[child]):
+        best = child
+        last = child + 4 if child + 4 <= n else n
+        child += 1
+        while child < last:
+            if open_less(&h.items[child], &h.items[best]):
+                best = child
             child += 1
-        if not open_less(&h.items[child], &item):
+        if not open_less(&h.items[best], &item):
             break
-        h.items[i] = h.items[child]
-        i = child
+        h.items[i] = h.items[best]
+        i = best
     h.items[i] = item
 
 
@@ -137,7 +145,7 @@ cdef inline OpenItem open_pop(OpenHeap* h) noexcept nogil:
 
 
 cdef inline void open_heapify(OpenHeap* h) noexcept nogil:
-    cdef Py_ssize_t i = (h.size >> 1) - 1
+    cdef Py_ssize_t i = (h.size - 2) >> 2 if h.size > 1 else -1
     while i >= 0:
         open_sift_down(h, i)
         i -= 1
@@ -147,7 +155,7 @@ cdef inline void f_sift_up(FHeap* h, Py_ssize_t i) noexcept nogil:
     cdef FItem item = h.items[i]
     cdef Py_ssize_t parent
     while i > 0:
-        parent = (i - 1) >> 1
+        parent = (i - 1) >> 2
         if not f_less(&item, &h.items[parent]):
             break
         h.items[i] = h.items[parent]
@@ -158,17 +166,22 @@ cdef inline void f_sift_up(FHeap* h, Py_ssize_t i) noexcept nogil:
 cdef inline void f_sift_down(FHeap* h, Py_ssize_t i) noexcept nogil:
     cdef FItem item = h.items[i]
     cdef Py_ssize_t n = h.size
-    cdef Py_ssize_t child
+    cdef Py_ssize_t child, best, last
     while True:
-        child = 2 * i + 1
+        child = 4 * i + 1
         if child >= n:
             break
-        if child + 1 < n and f_less(&h.items[child + 1], &h.items[child]):
+        best = child
+        last = child + 4 if child + 4 <= n else n
+        child += 1
+        while child < last:
+            if f_less(&h.items[child], &h.items[best]):
+                best = child
             child += 1
-        if not f_less(&h.items[child], &item):
+        if not f_less(&h.items[best], &item):
             break
-        h.items[i] = h.items[child]
-        i = child
+        h.items[i] = h.items[best]
+        i = best
     h.items[i] = item
 
 
@@ -195,7 +208,7 @@ cdef inline FItem f_pop(FHeap* h) noexcept nogil:
 
 
 cdef inline void f_heapify(FHeap* h) noexcept nogil:
-    cdef Py_ssize_t i = (h.size >> 1) - 1
+    cdef Py_ssize_t i = (h.size - 2) >> 2 if h.size > 1 else -1
     while i >= 0:
         f_sift_down(h, i)
         i -= 1

@@ -9,7 +9,7 @@
 
 from libc.stdint cimport int32_t, int64_t, uint64_t
 
-from worker.engine.kernels._heap cimport FHeap, OpenHeap
+from worker.engine.kernels._heap cimport FHeap, FItem, OpenHeap
 
 cdef enum:
     MAX_SUCC = 8
@@ -51,6 +51,7 @@ cdef class SearchKernel:
 
     cdef OpenHeap open
     cdef FHeap fheap
+    cdef Py_ssize_t fheap_compact_at
     cdef int64_t* incons_list
     cdef int64_t incons_len
     cdef int64_t incons_cap
@@ -74,6 +75,8 @@ cdef class SearchKernel:
     cdef int _seed(self, object s0) except -1
     cdef int _run(self, int64_t n) except -1
     cdef bint _pop_min_f(self, int64_t* s, double* g, double* f) noexcept nogil
+    cdef bint _f_live(self, FItem* it) noexcept nogil
+    cdef void _compact_fheap(self) noexcept nogil
     cdef int _incons_add(self, int64_t node) noexcept nogil
     cdef void _incons_remove(self, int64_t node) noexcept nogil
     cdef int _merge_incons(self) noexcept nogil

@@ -25,6 +25,9 @@ from worker.engine.types import Path, StepStatus
 from worker.exceptions import SearchError
 
 cdef double INF = INFINITY
+# The f-heap is swept of stale entries when it has doubled since the last sweep
+# and holds at least this many.
+cdef Py_ssize_t F_COMPACT_MIN = 1 << 16
 
 
 cdef class SearchKernel:
@@ -42,6 +45,7 @@ cdef class SearchKernel:
         self.open.items = NULL
         self.fheap.items = NULL
         self.nodes_cap = 0
+        self.fheap_compact_at = F_COMPACT_MIN
 
     def __dealloc__(self):
         free(self.g)
@@ -188,8 +192,7 @@ cdef class SearchKernel:
             return min(self.incumbent, self._scan_open_min_f())
         while self.fheap.size > 0:
             top = &self.fheap.items[0]
-            if top.g <= self.g[top.node] and (
-                    not self.closed[top.node] or (self.defer and self.incons_pos[top.node] >= 0)):
+            if self._f_live(top):
                 return min(self.incumbent, top.f)
             f_pop(&self.fheap)
         return self.incumbent
@@ -310,9 +313,31 @@ cdef class SearchKernel:
         self.incons_live = 0
         return 0
 
+    cdef bint _f_live(self, FItem* it) noexcept nogil:
+        return it.g <= self.g[it.node] and (
+            not self.closed[it.node] or (self.defer and self.incons_pos[it.node] >= 0))
+
+    cdef void _compact_fheap(self) noexcept nogil:
+        """Drop the f-heap's stale entries at once instead of popping them one by one.
+
+        An entry goes stale for good: its g is above the node's (g only falls),
+        or its node was closed, and a closed node opens again only through a
+        lower g. So dropping them changes no later pop and no lower bound.
+        """
+        cdef Py_ssize_t j, k = 0
+        for j in range(self.fheap.size):
+            if self._f_live(&self.fheap.items[j]):
+                self.fheap.items[k] = self.fheap.items[j]
+                k += 1
+        self.fheap.size = k
+        f_heapify(&self.fheap)
+        self.fheap_compact_at = max(2 * k, F_COMPACT_MIN)
+
     cdef bint _pop_min_f(self, int64_t* s, double* g, double* f) noexcept nogil:
         """Pop the live node of least g + h from the f-heap (a bound-raising expansion)."""
         cdef FItem it
+        if self.fheap.size > self.fheap_compact_at:
+            self._compact_fheap()
         while self.fheap.size > 0:
             it = f_pop(&self.fheap)
             if it.g <= self.g[it.node]:
