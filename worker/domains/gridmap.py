@@ -121,7 +121,8 @@ def parse_map(text: str) -> Terrain:
     parts = []
     for i, line in enumerate(body):
         if len(line) != width:
-            raise ProblemError("map", f"line {i + 5} (map row {i}): has {len(line)} cells; the header says width {width}")
+            raise ProblemError("map", f"line {i + 5} (map row {i}): has {len(line)} cells; "
+                               f"the header says width {width}")
         out, bad = _translate(line, _MAP_TABLE)
         if bad >= 0:
             raise ProblemError("map", f"line {i + 5} (map row {i}): unknown character {line[bad]!r} at column {bad}; "
