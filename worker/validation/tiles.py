@@ -31,7 +31,7 @@ def validate_tiles_plan(problem: Any, steps: Sequence[Any]) -> float:
         target = r * width + c
         board[blank], board[target] = board[target], 0
         blank = target
-        if list(state) != board if isinstance(state, (list, tuple)) else True:
+        if not isinstance(state, (list, tuple)) or list(state) != board:
             raise PlanValidationError(f"step {i}: state {state!r} is not the board after the move, {board!r}")
         check_step_cost(i, claimed, 1.0)
     if board != list(problem.goal):
