@@ -64,3 +64,40 @@ def cost_to_go(g: nx.DiGraph, goals: list) -> dict:
 def free_cells(rows: list[str]) -> list[tuple[int, int]]:
     """Return the open cells of a floor plan."""
     return [(r, c) for r, row in enumerate(rows) for c, ch in enumerate(row) if ch != "#"]
+
+
+def random_graph_body(rng: random.Random, n: int, coordinates: str | None, directed: bool, goals: int = 0) -> dict:
+    """Return a random graph problem body (with parallel edges, self-loops and zero costs now and then)."""
+    nodes = []
+    for i in range(n):
+        node = {"id": f"n{i}"}
+        if coordinates == "plane":
+            node.update(x=rng.uniform(-50, 50), y=rng.uniform(-50, 50))
+        elif coordinates == "geo":
+            node.update(lat=rng.uniform(40, 50), lon=rng.uniform(-5, 10))
+        nodes.append(node)
+    edges = []
+    for _ in range(rng.randint(0, 4 * n)):
+        u, v = rng.randrange(n), rng.randrange(n)
+        cost = rng.choice([0.0, round(rng.uniform(0, 100), 3), float(rng.randint(1, 9))])
+        edges.append({"from": f"n{u}", "to": f"n{v}", "cost": cost})
+    body = {"nodes": nodes, "edges": edges, "directed": directed, "start": "n0",
+            "goals": [f"n{i}" for i in rng.sample(range(n), k=goals or rng.randint(1, min(n, 3)))]}
+    if coordinates:
+        body["coordinates"] = coordinates
+    return body
+
+
+def graph_of_body(body: dict) -> nx.MultiDiGraph:
+    g = nx.MultiDiGraph()
+    g.add_nodes_from(n["id"] for n in body["nodes"])
+    for e in body["edges"]:
+        g.add_edge(e["from"], e["to"], weight=e["cost"])
+        if not body["directed"]:
+            g.add_edge(e["to"], e["from"], weight=e["cost"])
+    return g
+
+
+def graph_cost_to_go(body: dict) -> dict:
+    """Every node's cheapest cost to the nearest goal (networkx Dijkstra on the reversed graph)."""
+    return nx.multi_source_dijkstra_path_length(graph_of_body(body).reverse(copy=False), body["goals"])
