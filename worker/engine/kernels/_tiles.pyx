@@ -10,8 +10,9 @@ order, two moves each), updated from the parent's h by re-scoring only the
 one line a move can change. A domain state is ``(board << 24) | (h << 8) | blank``.
 
 Per node: the board, blank cell, g, h, parent and closed flag in flat arrays;
-a table of 64-bit slots (node number and 32 hash bits, linear probing, at most
-70% full) finds a board's node.
+an open-addressing table (board and node number per slot, linear probing, at
+most 70% full) finds a board's node. The slots of all successors are
+prefetched before any is probed, so their cache misses overlap.
 """
 
 from libc.stdint cimport int64_t, uint32_t, uint64_t, uint8_t
@@ -21,6 +22,17 @@ from worker.engine.kernels._search cimport SearchKernel
 
 # Lines whose packed contents fit in this many bits get their conflicts from a table.
 cdef int TABLE_BITS = 16
+
+
+cdef extern from *:
+    """
+    #if defined(__GNUC__) || defined(__clang__)
+    #define BW_PREFETCH(p) __builtin_prefetch(p)
+    #else
+    #define BW_PREFETCH(p) ((void)0)
+    #endif
+    """
+    void BW_PREFETCH(const void* p) noexcept nogil
 
 
 cdef inline uint64_t mix(uint64_t x) noexcept nogil:
@@ -49,7 +61,8 @@ cdef class TilesKernel(SearchKernel):
     cdef uint64_t* keys
     cdef uint8_t* blanks
     cdef int64_t tiles_cap, nnodes
-    cdef uint64_t* slots  # (node + 1) << 32 | hash bits; 0 = empty
+    cdef uint64_t* slot_key
+    cdef uint32_t* slot_node  # node + 1; 0 = empty
     cdef uint64_t slot_mask
     cdef int64_t slot_used
     cdef uint8_t sblank[8]
@@ -60,7 +73,8 @@ cdef class TilesKernel(SearchKernel):
         self.col_table = NULL
         self.keys = NULL
         self.blanks = NULL
-        self.slots = NULL
+        self.slot_key = NULL
+        self.slot_node = NULL
         self.tiles_cap = 0
         self.nnodes = 0
 
@@ -70,7 +84,8 @@ cdef class TilesKernel(SearchKernel):
         free(self.col_table)
         free(self.keys)
         free(self.blanks)
-        free(self.slots)
+        free(self.slot_key)
+        free(self.slot_node)
 
     def __init__(self, space, config, spec):
         cdef int w = int(spec["width"]), h = int(spec["height"]), n, i, v, k
@@ -171,12 +186,16 @@ cdef class TilesKernel(SearchKernel):
 
     cdef int _expand_board(self, uint64_t board, int h0, int p) noexcept nogil:
         cdef int k, q, v, nh, n = self.cells, b = self.bits, w = self.width, gl
-        cdef uint64_t nb
-        self.nsucc = 0
+        cdef uint64_t nb, j
+        cdef uint64_t hv[4]
         for k in range(self.nmoves[p]):
             q = self.move_to[p][k]
             v = <int>((board >> (q * b)) & self.mask)
             nb = board - (<uint64_t>v << (q * b)) + (<uint64_t>v << (p * b))
+            hv[k] = mix(nb)
+            j = hv[k] & self.slot_mask
+            BW_PREFETCH(&self.slot_node[j])
+            BW_PREFETCH(&self.slot_key[j])
             nh = h0 - self.md[v * n + q] + self.md[v * n + p]
             if self.move_vertical[p][k]:
                 gl = self.goal_row[v]
@@ -191,8 +210,9 @@ cdef class TilesKernel(SearchKernel):
             self.scost[k] = 1.0
             self.sh[k] = <double>nh
             self.sgoal[k] = nb == self.goal_board
-            self.snode[k] = self._find(nb)
         self.nsucc = self.nmoves[p]
+        for k in range(self.nsucc):
+            self.snode[k] = self._find(self.skey[k], hv[k])
         return self.nsucc
 
     cdef int _expand(self, int64_t s) noexcept nogil:
@@ -201,33 +221,38 @@ cdef class TilesKernel(SearchKernel):
     cdef double _heur(self, int i) noexcept nogil:
         return self.sh[i]
 
-    cdef inline int64_t _find(self, uint64_t board) noexcept nogil:
-        cdef uint64_t hv = mix(board), tag = hv >> 32, slot
+    cdef inline int64_t _find(self, uint64_t board, uint64_t hv) noexcept nogil:
         cdef uint64_t j = hv & self.slot_mask
+        cdef uint32_t node
         while True:
-            slot = self.slots[j]
-            if slot == 0:
+            node = self.slot_node[j]
+            if node == 0:
                 return -1
-            if (slot & 0xFFFFFFFFULL) == tag and self.keys[(slot >> 32) - 1] == board:
-                return <int64_t>(slot >> 32) - 1
+            if self.slot_key[j] == board:
+                return <int64_t>node - 1
             j = (j + 1) & self.slot_mask
 
     cdef int _grow_slots(self, int64_t size) noexcept nogil:
         """Rehash into ``size`` slots (a power of two); return -1 on no memory."""
-        cdef uint64_t* new = <uint64_t*>calloc(size, sizeof(uint64_t))
-        cdef uint64_t* old = self.slots
-        cdef int64_t old_size = <int64_t>self.slot_mask + 1 if old != NULL else 0, i
+        cdef uint64_t* new_key = <uint64_t*>malloc(size * sizeof(uint64_t))
+        cdef uint32_t* new_node = <uint32_t*>calloc(size, sizeof(uint32_t))
+        cdef int64_t old_size = <int64_t>self.slot_mask + 1 if self.slot_node != NULL else 0, i
         cdef uint64_t j, m = <uint64_t>size - 1
-        if new == NULL:
+        if new_key == NULL or new_node == NULL:
+            free(new_key)
+            free(new_node)
             return -1
         for i in range(old_size):
-            if old[i] != 0:
-                j = mix(self.keys[(old[i] >> 32) - 1]) & m
-                while new[j] != 0:
+            if self.slot_node[i] != 0:
+                j = mix(self.slot_key[i]) & m
+                while new_node[j] != 0:
                     j = (j + 1) & m
-                new[j] = old[i]
-        free(old)
-        self.slots = new
+                new_key[j] = self.slot_key[i]
+                new_node[j] = self.slot_node[i]
+        free(self.slot_key)
+        free(self.slot_node)
+        self.slot_key = new_key
+        self.slot_node = new_node
         self.slot_mask = m
         return 0
 
@@ -249,19 +274,19 @@ cdef class TilesKernel(SearchKernel):
 
     cdef int64_t _store(self, int i) noexcept nogil:
         cdef int64_t node = self.nnodes
-        cdef uint64_t board = self.skey[i], hv, j
-        if node >= 0x7FFFFFFF or self._grow_nodes(node + 1) < 0:
+        cdef uint64_t board = self.skey[i], j
+        if node >= <int64_t>0xFFFFFFFE or self._grow_nodes(node + 1) < 0:
             return -1
         if (self.slot_used + 1) * 10 > (<int64_t>self.slot_mask + 1) * 7:
             if self._grow_slots(2 * (<int64_t>self.slot_mask + 1)) < 0:
                 return -1
         self.keys[node] = board
         self.blanks[node] = self.sblank[i]
-        hv = mix(board)
-        j = hv & self.slot_mask
-        while self.slots[j] != 0:
+        j = mix(board) & self.slot_mask
+        while self.slot_node[j] != 0:
             j = (j + 1) & self.slot_mask
-        self.slots[j] = (<uint64_t>(node + 1) << 32) | (hv >> 32)
+        self.slot_key[j] = board
+        self.slot_node[j] = <uint32_t>(node + 1)
         self.slot_used += 1
         self.nnodes = node + 1
         return node
@@ -308,7 +333,7 @@ cdef class TilesKernel(SearchKernel):
 
     def memory_bytes(self):
         """Return the bytes held by the node tables, heaps, node index and line tables."""
-        extra = self.tiles_cap * (sizeof(uint64_t) + sizeof(uint8_t)) + (self.slot_mask + 1) * sizeof(uint64_t)
+        extra = self.tiles_cap * (sizeof(uint64_t) + sizeof(uint8_t)) + (self.slot_mask + 1) * (sizeof(uint64_t) + sizeof(uint32_t))
         if self.row_table != NULL:
             extra += self.height << self.row_bits
         if self.col_table != NULL:
