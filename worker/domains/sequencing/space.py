@@ -32,6 +32,12 @@ stays represented on open. States that were yielded and only later
 dominated are remembered, so replaying a stored path (the engine does that
 to rebuild a plan) sees the same successors again.
 
+Guidance. The tree bound knows nothing of windows, so with windows the open
+list is ordered by a pilot instead (``guidance``, inadmissible, ordering
+only): the cost of finishing from the state by always starting next the task
+that can start soonest. Without windows the tree bound orders better and
+the pilot is not used (measured on TSPLIB instances of 48 to 70 cities).
+
 A state that can no longer meet some remaining due (even by the quickest
 changeover chain) is never yielded, so a problem whose windows or
 precedence admit no order ends with the open list exhausted: proven
@@ -54,8 +60,9 @@ __all__ = ["SequencingSpace", "DENSE_MAX_TASKS"]
 logger = logging.getLogger(__name__)
 
 # Up to this many tasks (without windows) the engine may keep its tables in
-# flat arrays of (n + 1) * 2**n slots: 1.1 M slots (about 19 MB) at 16.
-DENSE_MAX_TASKS = 16
+# flat arrays of (n + 1) * 2**n slots: 53 k slots at 12; above that the few
+# states a good bound stores do not pay for a table of every possible one.
+DENSE_MAX_TASKS = 12
 INF = math.inf
 
 
@@ -100,6 +107,9 @@ class SequencingSpace:
         self._best: dict[int, float] = {}
         self._fronts: dict[int, list[tuple[float, float]]] = {}
         self._retired: set[Any] = set()
+        # a stuck pilot scores worse than any finished one: more than any plan can cost
+        self._stuck = sum(map(max, self.c)) + sum(self.dur) + max(self.rel) + 1.0
+        self.guidance = self._pilot if self.timed else None
         if not self.timed and n <= DENSE_MAX_TASKS:
             self.dense_size = (1 << n) * n1
 
@@ -277,6 +287,35 @@ class SequencingSpace:
         keep.append((cost, clock))
         self._fronts[code] = keep
         return True
+
+    def _pilot(self, state: tuple) -> float:
+        """Return the cost of finishing from ``state`` by starting next whatever can start soonest."""
+        n1, full, c, rel, dur, due_lim, pred = self.n1, self.full, self.c, self.rel, self.dur, self.due_lim, self.pred
+        code, clock = state[0], state[1]
+        last, mask = code % n1, code // n1
+        begin, changes = clock, 0.0
+        while mask != full:
+            row = c[last]
+            best, best_start = 0, INF
+            for r in range(1, n1):
+                if mask >> (r - 1) & 1 or pred[r] & ~mask:
+                    continue
+                start = clock + row[r]
+                if rel[r] > start:
+                    start = rel[r]
+                if start < best_start and start + dur[r] <= due_lim[r]:
+                    best, best_start = r, start
+            if not best:
+                left = self.n1 - 1 - mask.bit_count()
+                return (clock - begin if self.makespan else changes) + self._stuck * left
+            changes += row[best]
+            clock = best_start + dur[best]
+            last = best
+            mask |= 1 << (best - 1)
+        if self.closed and code != full * n1:
+            changes += c[last][0]
+            clock += c[last][0]
+        return clock - begin if self.makespan else changes
 
     # -- bounds with time --------------------------------------------------------
 
