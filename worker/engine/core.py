@@ -222,9 +222,11 @@ class PythonCore:
         self._merge_incons()
 
     def _merge_incons(self) -> None:
-        incons, closed, g = self._incons, self._closed, self._g
-        self._incons = {}
-        for s, h in incons.items():
+        closed, g = self._closed, self._g
+        # Emptied in place: the search loop holds a reference to this dict.
+        items = list(self._incons.items())
+        self._incons.clear()
+        for s, h in items:
             closed[s] = 0
             self._push(s, g[s], h)
 

@@ -112,3 +112,20 @@ def test_target_bound_stops_early():
     imps, fin = solve(space, SearchConfig(weight=5.0), Budget(target_bound=1e6))
     assert fin.stop_reason in (StopReason.TARGET_BOUND, StopReason.EXHAUSTED)
     assert len(imps) == 1 and isinstance(imps[0], Improvement)
+
+
+def test_defer_policy_merges_incons_when_open_runs_empty():
+    # Inconsistent h and a large weight make closed states improve later; under
+    # "defer" with a fixed weight they wait on INCONS until open is empty.
+    rng = random.Random(11)
+    merged = 0
+    for _ in range(40):
+        space, opt, _ = random_instance(rng, 40, 0.15, "inconsistent")
+        if opt is None:
+            continue
+        imps, fin = solve(space, SearchConfig(weight=5.0, reopen="defer", bound_share=0.0),
+                          Budget(expansions=100_000))
+        assert fin.stop_reason is StopReason.EXHAUSTED, "the search must end, not spin"
+        assert fin.cost == pytest.approx(opt)  # source: networkx Dijkstra
+        merged += fin.counters.expansions > 40
+    assert merged > 0, "some instance re-expanded deferred states"
