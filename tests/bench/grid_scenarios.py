@@ -56,12 +56,14 @@ def main() -> int:
     config = SearchConfig(weight=1.0)
     total_bad = total_lines = 0
     total_ours = total_ref = 0.0
-    print(f"{'scenario file':34} {'lines':>5} {'wrong':>5} {'expansions':>11} {'ours s':>8} {'textbook s':>10} {'ratio':>6}")
+    print(f"{'scenario file':34} {'lines':>5} {'wrong':>5} {'expansions':>11} {'ours s':>8} "
+          f"{'textbook s':>10} {'ratio':>6}")
     for path in sorted(folder.glob("*.scen")):
         text, lines = scenarios(path)
         lines = lines[::args.every]
         base = GridSchema().load({"map": text, "start": list(lines[0][0]), "goals": [list(lines[0][1])]})
-        rows = ["".join("." if k else "#" for k in base.terrain.costs[r * base.terrain.width:(r + 1) * base.terrain.width])
+        w = base.terrain.width
+        rows = ["".join("." if k else "#" for k in base.terrain.costs[r * w:(r + 1) * w])
                 for r in range(base.terrain.height)]
         bad = expansions = 0
         ours = ref = 0.0
