@@ -60,6 +60,28 @@ def test_grid_kernel_matches_the_python_core_and_networkx(compiled, seed):
             assert fin[9] and fin[1] is None
 
 
+# A floor plan on which the open list runs empty while states still wait on INCONS
+# (weight 3, lowered after each plan, deferred reopening): they must go back to open.
+DEFER_ROWS = [
+    "23#.......333..3...32#", "...3.3.#.3...23..33.3.", "3#3..........#.#2..3..", ".22.3...#.2.3..3....#2",
+    "2#3..3....22.2.2..3.3#", ".3.2.......3...#...3.3", ".....2.33#.......2....", "3..2...332........3.3.",
+    "33..3....3322.2.#.##..", "...2.#..23.#..2#3.....", "...#..33#..3##323..33.", "...#.......3..#..33..2",
+    "..#..3..32...3...#3333", "3..3.#.233.223.#.....3", ".#32.......3......223.", "..2..........#...3....",
+    "...2.2..#.......#23..3", "2...223.32...3....#...", "3.3......2.3.3..32..33", "..233...3##.......2#3.",
+    ".....#...#3.#2....33.#", "2#3....3#...#..2.33..2", ".3..2#3.2.32..........", "#23..#322..2#..#3.3...",
+]
+
+
+def test_deferred_states_return_when_open_runs_empty(compiled):
+    problem = {"rows": DEFER_ROWS, "moves": 4, "corner_cutting": True, "start": [0, 15], "goals": [[21, 14]]}
+    space = GridSpace(GridSchema().load(problem))
+    config = SearchConfig(weight=3.0, schedule="decreasing", reopen="defer", bound_share=0.0)
+    python, native = both_traces(compiled, space, config, Budget())
+    assert native == python
+    optimal = cost_to_go(grid_graph(DEFER_ROWS, 4, True), [(21, 14)])[(0, 15)]  # source: networkx Dijkstra
+    assert len(native) >= 3 and native[-1][8] and native[-1][1] == pytest.approx(optimal, rel=1e-9)
+
+
 def test_step_statuses_and_counters_match_slice_by_slice(compiled):
     rng = random.Random(7)
     rows = random_rows(rng, 60, 60, 0.25, terrain=True)
