@@ -18,9 +18,11 @@ def healthz() -> Response:
 
 
 @bp.get("/readyz")
-def readyz() -> tuple[Response, int]:
-    """Answer 200 when Redis answers and at least one RQ worker is registered, else 503."""
+def readyz() -> tuple[Response, int] | tuple[Response, int, dict[str, str]]:
+    """Answer 200 when Redis answers and at least one RQ worker is registered, else 503 with Retry-After."""
     checks = current_app.extensions["boundwise"].store.readiness()
     ready = checks["redis"] and checks["workers"] > 0
-    status = 200 if ready else 503
-    return jsonify({"status": "ready" if ready else "not_ready", **checks}), status
+    body = jsonify({"status": "ready" if ready else "not_ready", **checks})
+    if ready:
+        return body, 200
+    return body, 503, {"Retry-After": "2"}
