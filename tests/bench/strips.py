@@ -138,6 +138,19 @@ def prove(task, heuristic: str, limit: float) -> tuple[object, float, float]:
     return fin, dt, timed.seconds / dt if dt > 0 else 0.0
 
 
+def anytime_summary(task, guidance: str, limit: float) -> tuple[float | None, float | None, object, float]:
+    """Run the default search settings; return (first plan time, first cost, finished, total time)."""
+    space = StripsSpace(task, "lmcut", guidance)
+    first_t = first_c = None
+    t0 = time.perf_counter()
+    for event in search(space, SearchConfig(), Budget(time_s=limit)):
+        if isinstance(event, Improvement) and first_t is None:
+            first_t, first_c = time.perf_counter() - t0, event.cost
+        if isinstance(event, Finished):
+            return first_t, first_c, event, time.perf_counter() - t0
+    raise AssertionError("search ended without a Finished event")
+
+
 def _fmt_proof(fin, dt: float, share: float) -> str:
     state = "opt" if fin.proven_optimal else f"L={fin.lower_bound:g}"
     cost = "-" if fin.cost is None else f"{fin.cost:g}"
@@ -180,6 +193,22 @@ def main() -> None:
               f" {lm / hm:5.2f} {ff:7.0f} {ff / hm:5.2f} | {lm_txt:<36} | {hm_txt:<36} | {ratio}", flush=True)
         if label.startswith("gen-"):
             generated = task
+    print(f"\nguidance at the default search settings (weight 2, fixed; LM-cut bound), none vs h_FF:")
+    print(f"{'instance':<22} | {'none: first plan':<22} {'proof':>16} | {'hff: first plan':<22} {'proof':>16}"
+          f" | proof time hff/none")
+    for label, domain_text, problem_text, _ in instances(args.quick):
+        if args.quick and (label == "prob03" or label.startswith("gen-")):
+            continue
+        domain = parse_domain(domain_text)
+        task = ground(domain, parse_problem(problem_text, domain))
+        cells, times = [], []
+        for guidance in ("none", "hff"):
+            ft, fc, fin, dt = anytime_summary(task, guidance, args.time_limit)
+            first = "-" if ft is None else f"{fc:g} at {ft:6.3f}s"
+            proof = f"{fin.counters.expansions} exp {dt:6.2f}s" if fin.proven_optimal else f"open {dt:6.2f}s"
+            cells.append(f"{first:<22} {proof:>16}")
+            times.append(dt if fin.proven_optimal else float("nan"))
+        print(f"{label:<22} | {cells[0]} | {cells[1]} | {times[1] / times[0]:.2f}", flush=True)
     if totals["lmcut"] > 0:
         print(f"\nover the proofs above: grounding {totals['ground']:.2f}s, LM-cut searches {totals['lmcut']:.2f}s, "
               f"of which {totals['lmcut_h'] / totals['lmcut']:.0%} inside the estimate")

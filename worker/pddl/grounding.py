@@ -4,7 +4,9 @@ Only actions that can ever apply are made, never the cross product of all
 parameter values: starting from the initial atoms, each round joins every
 schema's positive preconditions against the atoms reached so far (static
 predicates, which no action changes, are only ever their initial atoms) and
-adds the effects of every new binding, until a round adds no atom. Types,
+adds the effects of every new binding, until a round adds no atom. After the
+first round a join starts from the atoms new since the previous round
+(semi-naive evaluation), so no binding is enumerated round after round. Types,
 equality and negated static atoms are exact checks during the join; negated
 changing atoms are ignored while reaching (a relaxation, so nothing reachable
 is lost) and kept as ``pre_not`` of the ground action.
@@ -21,7 +23,8 @@ action like ``(pick ball1 rooma left)``.
 from __future__ import annotations
 
 import logging
-from collections.abc import Iterator
+import math
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 from fractions import Fraction
 
@@ -30,12 +33,15 @@ from worker.heuristics.relaxed import prune_unreachable
 from worker.heuristics.task import GroundTask, normalise_action, scale_costs
 from worker.pddl.model import EQUALITY, ActionSchema, Atom, Domain, Problem
 
-__all__ = ["ground", "MAX_GROUND_ACTIONS", "MAX_GROUND_FACTS"]
+__all__ = ["ground", "MAX_GROUND_ACTIONS", "MAX_GROUND_FACTS", "MAX_BINDINGS_TRIED"]
 
 logger = logging.getLogger(__name__)
 
 MAX_GROUND_ACTIONS = 400_000
 MAX_GROUND_FACTS = 1 << 16
+# Candidate bindings tried over the whole fixpoint; parameters that no precondition
+# constrains are enumerated by type, which a hostile schema could make explode.
+MAX_BINDINGS_TRIED = 2_000_000
 
 Arg = tuple[bool, object]  # (is_variable, parameter index or object name)
 
@@ -47,6 +53,7 @@ class _Rule:
     schema: ActionSchema
     allowed: tuple[frozenset[str], ...]  # per parameter: the objects of its type
     join: tuple[tuple[str, tuple[Arg, ...]], ...]  # positive atoms, in join order
+    seeded: tuple[list[tuple[str, tuple[Arg, ...]]], ...]  # per atom: a join order that starts with it
     free: tuple[int, ...]  # parameters no positive atom binds
     same: tuple[tuple[Arg, Arg], ...]
     differ: tuple[tuple[Arg, Arg], ...]
@@ -71,19 +78,34 @@ def _rule(schema: ActionSchema, domain: Domain, problem: Problem, static: frozen
             atoms.append((lit.atom.predicate, args))
         elif lit.atom.predicate in static:
             static_not.append((lit.atom.predicate, args))
-    order: list[tuple[str, tuple[Arg, ...]]] = []
-    bound: set[int] = set()
+    join = _order(atoms, set(), static, init_size)
+    seeded = tuple(_order([a], set(), static, init_size) + _order(atoms[:i] + atoms[i + 1:], _vars(a), static,
+                                                                 init_size) for i, a in enumerate(atoms))
+    bound = set().union(*(_vars(a) for a in atoms)) if atoms else set()
+    free = tuple(i for i in range(len(schema.params)) if i not in bound)
+    return _Rule(schema, allowed, tuple(join), seeded, free, tuple(same), tuple(differ), tuple(static_not))
+
+
+Join = tuple[str, tuple[Arg, ...]]
+
+
+def _vars(atom: Join) -> set[int]:
+    return {x for is_var, x in atom[1] if is_var}  # type: ignore[misc]
+
+
+def _order(atoms: list[Join], bound: set[int], static: frozenset[str], init_size: dict[str, int]) -> list[Join]:
+    """Order atoms for joining: most already-bound terms first, then static ones, then the smaller."""
+    atoms, bound, out = list(atoms), set(bound), []
     while atoms:
-        def score(item: tuple[str, tuple[Arg, ...]]) -> tuple[int, int, int]:
+        def score(item: Join) -> tuple[int, int, int]:
             pred, args = item
             fixed = sum(1 for is_var, x in args if not is_var or x in bound)
             return (-fixed, 0 if pred in static else 1, init_size.get(pred, 0))
         best = min(atoms, key=score)
         atoms.remove(best)
-        order.append(best)
-        bound.update(x for is_var, x in best[1] if is_var)  # type: ignore[misc]
-    free = tuple(i for i in range(len(schema.params)) if i not in bound)
-    return _Rule(schema, allowed, tuple(order), free, tuple(same), tuple(differ), tuple(static_not))
+        out.append(best)
+        bound |= _vars(best)
+    return out
 
 
 def _value(arg: Arg, binding: list[str | None]) -> str:
@@ -92,41 +114,62 @@ def _value(arg: Arg, binding: list[str | None]) -> str:
 
 
 class _Reach:
-    """The relation of reached atoms per predicate, with lazily built per-position indexes."""
+    """The relation of reached atoms per predicate, with per-position indexes kept up to date."""
 
     def __init__(self, init: frozenset[Atom]) -> None:
         self.rel: dict[str, set[tuple[str, ...]]] = {}
         for a in init:
             self.rel.setdefault(a.predicate, set()).add(a.args)
-        self._index: dict[tuple[str, int], dict[str, list[tuple[str, ...]]]] = {}
+        self._index: dict[str, dict[int, dict[str, list[tuple[str, ...]]]]] = {}
 
     def add(self, pred: str, args: tuple[str, ...]) -> bool:
         rel = self.rel.setdefault(pred, set())
         if args in rel:
             return False
         rel.add(args)
-        for key in [k for k in self._index if k[0] == pred]:
-            del self._index[key]
+        for pos, idx in self._index.get(pred, {}).items():
+            idx.setdefault(args[pos], []).append(args)
         return True
 
     def matching(self, pred: str, pos: int, obj: str) -> list[tuple[str, ...]]:
-        key = (pred, pos)
-        idx = self._index.get(key)
+        by_pos = self._index.setdefault(pred, {})
+        idx = by_pos.get(pos)
         if idx is None:
-            idx = {}
+            idx = by_pos[pos] = {}
             for t in self.rel.get(pred, ()):
                 idx.setdefault(t[pos], []).append(t)
-            self._index[key] = idx
         return idx.get(obj, [])
 
 
-def _bindings(rule: _Rule, reach: _Reach, init: frozenset[Atom]) -> Iterator[tuple[str, ...]]:
-    """Yield every parameter binding whose positive atoms are reached and whose exact checks pass."""
+class _Work:
+    """Count candidate bindings and refuse the problem past ``MAX_BINDINGS_TRIED``."""
+
+    __slots__ = ("tried",)
+
+    def __init__(self) -> None:
+        self.tried = 0
+
+    def tick(self, n: int = 1) -> None:
+        self.tried += n
+        if self.tried > MAX_BINDINGS_TRIED:
+            raise LimitError("problem_text", f"grounding tried more than {MAX_BINDINGS_TRIED} parameter bindings; "
+                             "give parameters types or preconditions that narrow them",
+                             cap="grounding_bindings", limit=MAX_BINDINGS_TRIED)
+
+
+def _bindings(rule: _Rule, join: Sequence[Join], reach: _Reach, init: frozenset[Atom], work: _Work,
+              first: list[tuple[str, ...]] | None = None) -> Iterator[tuple[str, ...]]:
+    """Yield every parameter binding whose positive atoms are reached and whose exact checks pass.
+
+    With ``first`` given, the first atom of ``join`` only takes those tuples
+    (the atoms new since the last round).
+    """
     n = len(rule.allowed)
     binding: list[str | None] = [None] * n
-    join, allowed = rule.join, rule.allowed
+    allowed = rule.allowed
 
     def finish() -> Iterator[tuple[str, ...]]:
+        work.tick()
         for a, b in rule.same:
             if _value(a, binding) != _value(b, binding):
                 return
@@ -153,14 +196,15 @@ def _bindings(rule: _Rule, reach: _Reach, init: frozenset[Atom]) -> Iterator[tup
             yield from free(0)
             return
         pred, args = join[k]
-        candidates = None
-        for pos, (is_var, x) in enumerate(args):
+        candidates = first if k == 0 else None
+        for pos, (is_var, x) in enumerate(args if candidates is None else ()):
             v = x if not is_var else binding[x]  # type: ignore[index]
             if v is not None:
                 candidates = reach.matching(pred, pos, v)  # type: ignore[arg-type]
                 break
         if candidates is None:
             candidates = list(reach.rel.get(pred, ()))
+        work.tick(len(candidates))
         for tup in candidates:
             newly = []
             ok = True
@@ -214,24 +258,45 @@ def ground(domain: Domain, problem: Problem) -> GroundTask:
     for a in problem.init:
         init_size[a.predicate] = init_size.get(a.predicate, 0) + 1
     rules = [_rule(s, domain, problem, static, init_size) for s in domain.actions]
+    for rule in rules:
+        combos = math.prod(len(rule.allowed[i]) for i in rule.free)
+        if combos > MAX_BINDINGS_TRIED:
+            names = " ".join(rule.schema.params[i][0] for i in rule.free)
+            raise LimitError("problem_text", f"action {rule.schema.name!r}: parameters {names} are not narrowed by "
+                             f"any precondition and take {combos} combinations; type them or add preconditions",
+                             cap="grounding_bindings", limit=MAX_BINDINGS_TRIED)
     reach = _Reach(problem.init)
     found: list[set[tuple[str, ...]]] = [set() for _ in rules]
     total = 0
-    changed = True
-    while changed:
-        changed = False
+    work = _Work()
+    delta: dict[str, list[tuple[str, ...]]] | None = None  # None: the first, full round
+    while True:
+        new: dict[str, list[tuple[str, ...]]] = {}
         for rule, seen in zip(rules, found):
-            fresh = [b for b in _bindings(rule, reach, problem.init) if b not in seen]
-            total += len(fresh)
-            if total > MAX_GROUND_ACTIONS:
-                raise LimitError("problem_text", f"grounding makes more than {MAX_GROUND_ACTIONS} actions",
-                                 cap="ground_actions", limit=MAX_GROUND_ACTIONS)
-            for b in fresh:
-                seen.add(b)
-                sub = dict(zip(rule.schema.variables(), b))
-                for atom in rule.schema.add:
-                    if reach.add(atom.predicate, tuple(sub.get(t, t) for t in atom.args)):
-                        changed = True
+            if delta is None:
+                runs = [(rule.join, None)]
+            else:
+                runs = [(order, delta[order[0][0]]) for order in rule.seeded if order[0][0] in delta]
+            for order, first in runs:
+                fresh = []
+                for b in _bindings(rule, order, reach, problem.init, work, first):
+                    if b in seen:
+                        continue
+                    fresh.append(b)
+                    total += 1
+                    if total > MAX_GROUND_ACTIONS:
+                        raise LimitError("problem_text", f"grounding makes more than {MAX_GROUND_ACTIONS} actions",
+                                         cap="ground_actions", limit=MAX_GROUND_ACTIONS)
+                for b in fresh:
+                    seen.add(b)
+                    sub = dict(zip(rule.schema.variables(), b))
+                    for atom in rule.schema.add:
+                        args = tuple(sub.get(t, t) for t in atom.args)
+                        if reach.add(atom.predicate, args):
+                            new.setdefault(atom.predicate, []).append(args)
+        if not new:
+            break
+        delta = new
     facts = sorted((p, args) for p, rel in reach.rel.items() if p in fluent for args in rel)
     if len(facts) > MAX_GROUND_FACTS:
         raise LimitError("problem_text", f"grounding makes more than {MAX_GROUND_FACTS} facts",

@@ -16,7 +16,7 @@ from typing import NoReturn, Union
 
 from worker.exceptions import ProblemError
 
-__all__ = ["Sym", "SList", "Node", "read", "fail", "where"]
+__all__ = ["Sym", "SList", "Node", "read", "fail", "where", "MAX_DEPTH"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -58,6 +58,8 @@ def fail(field: str, node: Node | tuple[int, int], message: str) -> NoReturn:
 
 
 _DELIMS = frozenset("();")
+# Real domains nest a handful of levels; a cap keeps the recursive parsers far from Python's stack limit.
+MAX_DEPTH = 64
 
 
 def read(text: str, field: str) -> list[Node]:
@@ -79,6 +81,8 @@ def read(text: str, field: str) -> list[Node]:
             j = text.find("\n", i)
             i = n if j < 0 else j
         elif ch == "(":
+            if len(stack) >= MAX_DEPTH:
+                fail(field, (line, i - line_start + 1), f"lists nest deeper than {MAX_DEPTH} levels")
             stack.append((line, i - line_start + 1, out))
             out = []
             i += 1
