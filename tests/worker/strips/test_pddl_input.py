@@ -226,3 +226,33 @@ def test_request_errors_carry_the_dotted_field_and_location():
     with pytest.raises(RequestError) as err:
         parse_request({"problem": dict(EXAMPLE, heuristic="perfect")})
     assert err.value.field == "problem.heuristic"
+
+
+def test_deep_nesting_is_refused_at_the_list_past_the_cap():
+    from worker.pddl.sexpr import MAX_DEPTH
+    text = DOMAIN.replace("(and (loaded ?t) (increase", "(and " * 70 + "(loaded ?t)" + ")" * 70 + " (and (increase", 1)
+    with pytest.raises(ProblemError) as err:
+        build(PddlProblem(text, PROBLEM))
+    # The (MAX_DEPTH + 1)-th open list is the one refused; count the parentheses independently.
+    depth, where = 0, None
+    for i, ch in enumerate(text):
+        depth += ch == "("
+        depth -= ch == ")"
+        if depth > MAX_DEPTH:
+            where = i
+            break
+    line = text.count("\n", 0, where) + 1
+    assert "nest deeper" in err.value.message
+    assert (err.value.extra["line"], err.value.extra["column"]) == (line, where - text.rfind("\n", 0, where))
+
+
+def test_unconstrained_parameters_are_refused_before_enumerating_them():
+    domain = ("(define (domain wide) (:predicates (done ?a))"
+              " (:action mark :parameters (?a ?b ?c ?d ?e) :effect (done ?a)))")
+    objects = " ".join(f"bin{i}" for i in range(30))
+    problem = f"(define (problem p) (:domain wide) (:objects {objects}) (:goal (done bin1)))"
+    with pytest.raises(RequestError) as err:
+        build(PddlProblem(domain, problem))
+    # 30 objects for each of 5 free parameters: 30 ** 5 bindings, over the cap
+    assert err.value.field == "problem_text" and str(30 ** 5) in err.value.message
+    assert err.value.to_dict()["code"] == "over_limit"
