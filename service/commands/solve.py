@@ -44,8 +44,10 @@ def register(sub: Any) -> None:
 
 
 def _read(path: str) -> Any:
-    text = sys.stdin.read() if path == "-" else open(path, encoding="utf-8").read()
-    return json.loads(text)
+    if path == "-":
+        return json.loads(sys.stdin.read())
+    with open(path, encoding="utf-8") as f:
+        return json.loads(f.read())
 
 
 def apply_overrides(document: Any, args: argparse.Namespace) -> Any:
