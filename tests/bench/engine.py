@@ -125,7 +125,7 @@ def korf_instances(limit: int):
         print(f"(Korf instances not found at {path}; set BOUNDWISE_DATASETS)")
         return []
     with path.open() as f:
-        rows = list(csv.DictReader(f))
+        rows = list(csv.DictReader(line for line in f if not line.startswith("#")))
     return rows[:limit]
 
 
