@@ -354,15 +354,24 @@ class JobStore:
         deadline = self.clock() + max_s
         idle_since = self.clock()
         cursor = after
+        # A final job's events are all written (the final status and the final
+        # event go in together): read what is left without waiting, then stop.
+        drain = record.final
         while True:
             remaining = deadline - self.clock()
             if remaining <= 0:
                 return
             block_ms = max(1, int(min(remaining, _BLOCK_SLICE_S, keepalive_s) * 1000))
-            reply = self.redis.xread({keys.events: cursor}, count=100, block=block_ms)
+            reply = self.redis.xread({keys.events: cursor}, count=100, block=None if drain else block_ms)
             if not reply:
-                if self.get(record.id) is None:  # expired under us: nothing more will come
+                if drain:
                     return
+                current = self.get(record.id)
+                if current is None:  # expired under us: nothing more will come
+                    return
+                if current.final:
+                    drain = True
+                    continue
                 if self.clock() - idle_since >= keepalive_s:
                     idle_since = self.clock()
                     yield None

@@ -55,6 +55,7 @@ local s = redis.call('HGET', KEYS[1], 'status')
 if not s then return 'missing' end
 if s ~= 'queued' then return s end
 redis.call('HSET', KEYS[1], 'status', 'running', 'started_at', ARGV[1])
+redis.call('HDEL', KEYS[1], 'error')
 redis.call('HINCRBY', KEYS[1], 'attempts', 1)
 redis.call('SET', KEYS[2], '1', 'PX', ARGV[2])
 redis.call('XADD', KEYS[3], '*', 'type', 'status', 'data', ARGV[3])
@@ -110,6 +111,8 @@ class Publisher:
         self.settings: dict[str, float] = {}
         self.best: dict[str, Any] | None = None
         self.revision = 0
+        self.attempt = 0
+        self.started_at: str | None = None
         self._publish = redis.register_script(_PUBLISH)
         self._start = redis.register_script(_START)
         self._heartbeat = redis.register_script(_HEARTBEAT)
@@ -153,8 +156,9 @@ class Publisher:
         Anything but ``running`` means this attempt must not search (cancelled
         while queued, already final, or unknown).
         """
-        attempt = int(self.record.get("attempts") or 0) + 1
-        event = dumps({"status": JobStatus.RUNNING.value, "attempt": attempt, "started_at": utc_now()})
+        attempt = self.attempt = int(self.record.get("attempts") or 0) + 1
+        self.started_at = utc_now()
+        event = dumps({"status": JobStatus.RUNNING.value, "attempt": attempt, "started_at": self.started_at})
         status = text(self._start(keys=[self.keys.state, self.keys.alive, self.keys.events],
                                   args=[utc_now(), self._alive_ms, event, self.ttl]))
         if status != JobStatus.RUNNING.value:
@@ -273,5 +277,10 @@ class Publisher:
     def requeued(self, error: Mapping[str, str]) -> bool:
         """Put the job back to ``queued`` after a failed attempt that RQ will retry."""
         data = {"status": JobStatus.QUEUED.value, "retry_after_error": dict(error)}
-        return self._write(EventType.STATUS, data, {"status": JobStatus.QUEUED.value, "error": dict(error)},
-                           final=True)
+        # The ended attempt joins the job's attempt log (only this attempt writes while it runs).
+        log = json.loads(self.record.get("attempt_log") or "[]")
+        log.append({"attempt": self.attempt, "status": JobStatus.FAILED.value, "started_at": self.started_at,
+                    "ended_at": utc_now(), "revision": self.revision,
+                    "cost": None if self.best is None else self.best["cost"], "error": dict(error)})
+        return self._write(EventType.STATUS, data, {"status": JobStatus.QUEUED.value, "error": dict(error),
+                                                    "attempt_log": log}, final=True)
