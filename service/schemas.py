@@ -115,8 +115,13 @@ def _field(field: fields.Field, seen: tuple[type, ...]) -> dict[str, Any]:
         out = next((dict(js) for cls, js in _SIMPLE if isinstance(field, cls)), {})
     for validator in field.validators:
         _apply(out, validator)
-    if field.allow_none and "type" in out:
-        out["type"] = [out["type"], "null"] if isinstance(out["type"], str) else [*out["type"], "null"]
+    if field.allow_none:
+        if "type" in out:
+            out["type"] = [out["type"], "null"] if isinstance(out["type"], str) else [*out["type"], "null"]
+        if "enum" in out and None not in out["enum"]:
+            out["enum"] = [*out["enum"], None]
+        if "const" in out:
+            out["enum"] = [out.pop("const"), None]
     description = field.metadata.get("description")
     if description:
         out["description"] = description
