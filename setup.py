@@ -17,7 +17,7 @@ from setuptools.command.build_ext import build_ext
 logger = logging.getLogger(__name__)
 
 KERNEL_DIR = os.path.join("worker", "engine", "kernels")
-KERNELS = ("_search", "_grid", "_tiles")
+KERNELS = ("_tables", "_search", "_grid", "_tiles")
 DIRECTIVES = {
     "language_level": 3,
     "boundscheck": False,

@@ -1,21 +1,14 @@
 # cython: language_level=3
-# The compiled anytime weighted A* core shared by every kernel.
-#
-# A domain kernel subclasses SearchKernel and supplies three nogil methods:
-# _expand fills the successor buffer (key, node or -1 when never stored, cost,
-# goal flag, and h when it comes for free), _heur returns h of a buffered
-# successor, and _store gives a buffered successor a node number; and two
-# methods that turn a node or a buffered successor into the domain's own state.
+# The compiled anytime weighted A* core shared by every kernel (see _tables.pxd
+# for what a domain kernel supplies).
 
-from libc.stdint cimport int32_t, int64_t, uint64_t
+from libc.stdint cimport int64_t
 
-from worker.engine.kernels._heap cimport FHeap, FItem, OpenHeap
-
-cdef enum:
-    MAX_SUCC = 8
+from worker.engine.kernels._heap cimport FItem
+from worker.engine.kernels._tables cimport SearchTables
 
 
-cdef class SearchKernel:
+cdef class SearchKernel(SearchTables):
     cdef public int64_t expansions
     cdef public int64_t generated
     cdef public int64_t reopened
@@ -29,7 +22,6 @@ cdef class SearchKernel:
     cdef double keep
     cdef double cutoff
     cdef double weight_step
-    cdef bint defer
     cdef bint decreasing
     cdef bint done
     cdef bint pending
@@ -41,44 +33,13 @@ cdef class SearchKernel:
     cdef object path
     cdef readonly object start_state
 
-    # node tables, indexed by node number
-    cdef double* g
-    cdef double* h
-    cdef int32_t* parent
-    cdef unsigned char* closed
-    cdef int64_t* incons_pos
-    cdef int64_t nodes_cap
-
-    cdef OpenHeap open
-    cdef FHeap fheap
     cdef Py_ssize_t fheap_compact_at
-    cdef int64_t* incons_list
-    cdef int64_t incons_len
-    cdef int64_t incons_cap
-    cdef int64_t incons_live
-
-    # the successors of the node being expanded
-    cdef int nsucc
-    cdef uint64_t skey[MAX_SUCC]
-    cdef int64_t snode[MAX_SUCC]
-    cdef double scost[MAX_SUCC]
-    cdef double sh[MAX_SUCC]
-    cdef unsigned char sgoal[MAX_SUCC]
-
-    cdef int _expand(self, int64_t node) noexcept nogil
-    cdef double _heur(self, int i) noexcept nogil
-    cdef int64_t _store(self, int i) noexcept nogil
-    cdef object _node_state(self, int64_t node)
-    cdef object _succ_state(self, int i)
-    cdef int _grow_nodes(self, int64_t need) noexcept nogil
     cdef int _init_search(self, object space, object config, int64_t nodes) except -1
     cdef int _seed(self, object s0) except -1
     cdef int _run(self, int64_t n) except -1
     cdef bint _pop_min_f(self, int64_t* s, double* g, double* f) noexcept nogil
     cdef bint _f_live(self, FItem* it) noexcept nogil
     cdef void _compact_fheap(self) noexcept nogil
-    cdef int _incons_add(self, int64_t node) noexcept nogil
-    cdef void _incons_remove(self, int64_t node) noexcept nogil
     cdef int _merge_incons(self) noexcept nogil
     cdef int _after_improvement(self) except -1
     cdef int _record_goal(self, int64_t s, int i, double g2) except -1

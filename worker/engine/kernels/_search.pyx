@@ -13,12 +13,12 @@ successors, exactly as the pure-Python core does it.
 import builtins
 
 from libc.math cimport INFINITY, fabs
-from libc.stdint cimport int32_t, int64_t, uint64_t
-from libc.stdlib cimport free, malloc, realloc
+from libc.stdint cimport int32_t, int64_t
 
 from worker.engine.kernels._heap cimport (
     FItem, OpenItem, f_heapify, f_pop, f_push, f_reserve, open_heapify, open_pop, open_push,
 )
+from worker.engine.kernels._incons cimport incons_add, incons_at, incons_clear, incons_has, incons_remove
 
 from worker.engine.kernels.paths import rebuild_path
 from worker.engine.types import Path, StepStatus
@@ -30,93 +30,13 @@ cdef double INF = INFINITY
 cdef Py_ssize_t F_COMPACT_MIN = 1 << 16
 
 
-cdef class SearchKernel:
+cdef class SearchKernel(SearchTables):
     """Hold one whole search; ``step(n)`` resumes it for at most ``n`` expansions."""
 
     backend = "compiled"
 
     def __cinit__(self, *args, **kwargs):
-        self.g = NULL
-        self.h = NULL
-        self.parent = NULL
-        self.closed = NULL
-        self.incons_pos = NULL
-        self.incons_list = NULL
-        self.open.items = NULL
-        self.fheap.items = NULL
-        self.nodes_cap = 0
         self.fheap_compact_at = F_COMPACT_MIN
-
-    def __dealloc__(self):
-        free(self.g)
-        free(self.h)
-        free(self.parent)
-        free(self.closed)
-        free(self.incons_pos)
-        free(self.incons_list)
-        free(self.open.items)
-        free(self.fheap.items)
-
-    # -- what a domain kernel supplies ---------------------------------------
-
-    cdef int _expand(self, int64_t node) noexcept nogil:
-        return 0
-
-    cdef double _heur(self, int i) noexcept nogil:
-        return self.sh[i]
-
-    cdef int64_t _store(self, int i) noexcept nogil:
-        return <int64_t>self.skey[i]
-
-    cdef object _node_state(self, int64_t node):
-        return int(node)
-
-    cdef object _succ_state(self, int i):
-        return int(self.skey[i])
-
-    # -- set-up ----------------------------------------------------------------
-
-    cdef int _grow_nodes(self, int64_t need) noexcept nogil:
-        """Make the node tables hold ``need`` nodes (new ones unseen); return -1 on no memory."""
-        cdef int64_t cap = self.nodes_cap * 2 if self.nodes_cap > 0 else need
-        cdef int64_t i
-        cdef void* p
-        if need <= self.nodes_cap:
-            return 0
-        if cap < 1:
-            cap = 1
-        while cap < need:
-            cap *= 2
-        p = realloc(self.g, cap * sizeof(double))
-        if p == NULL:
-            return -1
-        self.g = <double*>p
-        p = realloc(self.h, cap * sizeof(double))
-        if p == NULL:
-            return -1
-        self.h = <double*>p
-        p = realloc(self.parent, cap * sizeof(int32_t))
-        if p == NULL:
-            return -1
-        self.parent = <int32_t*>p
-        p = realloc(self.closed, cap * sizeof(unsigned char))
-        if p == NULL:
-            return -1
-        self.closed = <unsigned char*>p
-        if self.defer:
-            p = realloc(self.incons_pos, cap * sizeof(int64_t))
-            if p == NULL:
-                return -1
-            self.incons_pos = <int64_t*>p
-        for i in range(self.nodes_cap, cap):
-            self.g[i] = INF
-            self.h[i] = INF
-            self.parent[i] = -1
-            self.closed[i] = 0
-            if self.defer:
-                self.incons_pos[i] = -1
-        self.nodes_cap = cap
-        return 0
 
     cdef int _init_search(self, object space, object config, int64_t nodes) except -1:
         if config.weight < 1.0:
@@ -137,7 +57,7 @@ cdef class SearchKernel:
         self.done = self.pending = self.has_fheap = False
         self.ticks = self.counter = 0
         self.start_node = -1
-        self.incons_len = self.incons_cap = self.incons_live = 0
+        self.incons.len = self.incons.cap = self.incons.live = 0
         if self._grow_nodes(nodes) < 0:
             raise MemoryError("no memory for the search tables")
         return 0
@@ -206,14 +126,6 @@ cdef class SearchKernel:
         """True once nothing is left to search."""
         return self.done
 
-    def memory_bytes(self):
-        """Return the bytes held by the node tables, heaps and INCONS list."""
-        cdef int64_t per_node = 2 * sizeof(double) + sizeof(int32_t) + sizeof(unsigned char)
-        if self.defer:
-            per_node += sizeof(int64_t)
-        return (self.nodes_cap * per_node + self.open.cap * sizeof(OpenItem)
-                + self.fheap.cap * sizeof(FItem) + self.incons_cap * sizeof(int64_t))
-
     def bytes_per_state(self):
         """Return memory held per stored state (the domain kernel may add its own tables)."""
         return self.memory_bytes() / max(1, self.stored)
@@ -253,55 +165,20 @@ cdef class SearchKernel:
                 if f < best:
                     best = f
         if self.defer:
-            for j in range(self.incons_len):
-                s = self.incons_list[j]
-                if self.incons_pos[s] == j:
+            for j in range(self.incons.len):
+                if incons_at(&self.incons, j, &s):
                     f = self.g[s] + self.h[s]
                     if f < best:
                         best = f
         return best
 
-    cdef int _incons_add(self, int64_t node) noexcept nogil:
-        """Put ``node`` on INCONS (kept in first-insertion order, like a dict)."""
-        cdef void* p
-        cdef int64_t j, k, s
-        if self.incons_pos[node] >= 0:
-            return 0
-        if self.incons_len >= self.incons_cap and self.incons_len > 2 * self.incons_live + 1024:
-            k = 0  # drop the holes left by removals, keeping the order
-            for j in range(self.incons_len):
-                s = self.incons_list[j]
-                if self.incons_pos[s] == j:
-                    self.incons_list[k] = s
-                    self.incons_pos[s] = k
-                    k += 1
-            self.incons_len = k
-        if self.incons_len >= self.incons_cap:
-            k = self.incons_cap * 2 if self.incons_cap > 0 else 1024
-            p = realloc(self.incons_list, k * sizeof(int64_t))
-            if p == NULL:
-                return -1
-            self.incons_list = <int64_t*>p
-            self.incons_cap = k
-        self.incons_pos[node] = self.incons_len
-        self.incons_list[self.incons_len] = node
-        self.incons_len += 1
-        self.incons_live += 1
-        return 0
-
-    cdef void _incons_remove(self, int64_t node) noexcept nogil:
-        self.incons_pos[node] = -1
-        self.incons_live -= 1
-
     cdef int _merge_incons(self) noexcept nogil:
         """Move every INCONS node back to open, in INCONS order, under the current weight."""
         cdef int64_t j, s
         cdef double gs
-        for j in range(self.incons_len):
-            s = self.incons_list[j]
-            if self.incons_pos[s] != j:
+        for j in range(self.incons.len):
+            if not incons_at(&self.incons, j, &s):
                 continue
-            self.incons_pos[s] = -1
             self.closed[s] = 0
             gs = self.g[s]
             if open_push(&self.open, gs + self.weight * self.h[s], gs, self.counter, s) < 0:
@@ -309,13 +186,12 @@ cdef class SearchKernel:
             if self.has_fheap and f_push(&self.fheap, gs + self.h[s], gs, self.counter, s) < 0:
                 return -1
             self.counter += 1
-        self.incons_len = 0
-        self.incons_live = 0
+        incons_clear(&self.incons)
         return 0
 
     cdef bint _f_live(self, FItem* it) noexcept nogil:
         return it.g <= self.g[it.node] and (
-            not self.closed[it.node] or (self.defer and self.incons_pos[it.node] >= 0))
+            not self.closed[it.node] or incons_has(&self.incons, it.node))
 
     cdef void _compact_fheap(self) noexcept nogil:
         """Drop the f-heap's stale entries at once instead of popping them one by one.
@@ -344,8 +220,8 @@ cdef class SearchKernel:
                 if not self.closed[it.node]:
                     s[0], g[0], f[0] = it.node, it.g, it.f
                     return True
-                if self.defer and self.incons_pos[it.node] >= 0:
-                    self._incons_remove(it.node)
+                if incons_has(&self.incons, it.node):
+                    incons_remove(&self.incons, it.node)
                     s[0], g[0], f[0] = it.node, it.g, it.f
                     return True
         return False
@@ -355,7 +231,7 @@ cdef class SearchKernel:
         cdef OpenItem* it
         cdef double new_w, gs
         if not self.has_fheap:
-            if f_reserve(&self.fheap, self.open.size + self.incons_live + 1) < 0:
+            if f_reserve(&self.fheap, self.open.size + self.incons.live + 1) < 0:
                 raise MemoryError("no memory for the lower-bound heap")
             for j in range(self.open.size):
                 it = &self.open.items[j]
@@ -367,9 +243,8 @@ cdef class SearchKernel:
                     self.fheap.items[k].node = s
                     k += 1
             if self.defer:
-                for j in range(self.incons_len):
-                    s = self.incons_list[j]
-                    if self.incons_pos[s] == j:
+                for j in range(self.incons.len):
+                    if incons_at(&self.incons, j, &s):
                         gs = self.g[s]
                         self.fheap.items[k].f = gs + self.h[s]
                         self.fheap.items[k].g = gs
@@ -417,7 +292,7 @@ cdef class SearchKernel:
                             picked = self._pop_min_f(&s, &g, &f)
                     if not picked:
                         if self.open.size == 0:
-                            if self.incons_live > 0:
+                            if self.incons.live > 0:
                                 if self._merge_incons() < 0:
                                     err = 1
                                     break
@@ -466,7 +341,7 @@ cdef class SearchKernel:
                         self.h[t] = ht
                         if self.closed[t]:
                             if defer:
-                                if self._incons_add(t) < 0:
+                                if incons_add(&self.incons, t) < 0:
                                     err = 1
                                     break
                                 if fh:
