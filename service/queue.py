@@ -183,7 +183,7 @@ class JobStore:
             if admit is not None:
                 admit(job_id)
             try:
-                self._write(job_id, request, owner, request_id)
+                state = self._write(job_id, request, owner, request_id)
             except BaseException:
                 if release is not None:
                     release(job_id)
@@ -193,9 +193,7 @@ class JobStore:
                 self.redis.delete(idem)
             raise
         metrics.record_submitted(request.queue)
-        record = self.get(job_id)
-        assert record is not None
-        return record, False
+        return JobRecord.parse(job_id, state), False
 
     def replay(self, owner: str, idempotency: str, digest: str) -> JobRecord | None:
         """Return the job an earlier request with this key made, or None if the key is new."""
@@ -223,7 +221,7 @@ class JobStore:
                                           "processed; retry shortly", "Idempotency-Key")
             time.sleep(0.02)
 
-    def _write(self, job_id: str, request: JobRequest, owner: str, request_id: str | None) -> None:
+    def _write(self, job_id: str, request: JobRequest, owner: str, request_id: str | None) -> dict[str, str]:
         keys = job_keys(job_id)
         cfg = self.config
         budget = request.budget
@@ -265,6 +263,7 @@ class JobStore:
         pipe.expire(keys.state, cfg.result_ttl_s)
         pipe.expire(keys.events, cfg.result_ttl_s)
         pipe.execute()
+        return state
 
     # -- read ---------------------------------------------------------------------------------
 
@@ -297,9 +296,16 @@ class JobStore:
         return JobRecord.parse(job_id, raw), cursor
 
     def is_active(self, job_id: str) -> bool:
-        """Tell whether the job is queued or running (used to count a tenant's running jobs)."""
-        record = self.get(job_id)
-        return record is not None and not record.final
+        """Tell whether the job is queued or running (used to count a tenant's running jobs).
+
+        One read of the status alone: this runs once per counted job on every
+        submit. A running job whose worker died still counts until the reaper
+        (every worker sweeps) or a read of the job turns it around.
+        """
+        if not valid_job_id(job_id):
+            return False
+        status = text(self.redis.hget(job_keys(job_id).state, "status"))
+        return status in (JobStatus.QUEUED.value, JobStatus.RUNNING.value)
 
     def wait(self, job_id: str, after: int | None, wait_s: float) -> JobRecord | None:
         """Return the job once its revision is above ``after`` or it is final, or after ``wait_s``."""
