@@ -6,7 +6,7 @@ Problem fields::
      "domain_text": "(define (domain ...) ...)",
      "problem_text": "(define (problem ...) ...)",
      "heuristic": "lmcut",     # lmcut | hmax | blind
-     "guidance": "none"}       # hff | none
+     "guidance": "hff"}        # hff | none
 
 The subset read (see ``worker.pddl``): STRIPS, typing (``either`` allowed),
 negative preconditions, equality, constants and action costs

@@ -11,7 +11,10 @@ lower bound; h_FF only orders the open list.
 - ``"hmax"``   h_max (Bonet & Geffner 2001), admissible and consistent;
 - ``"blind"``  0 on goal states, else the cheapest action cost: admissible;
 - ``"hff"``    the cost-sensitive relaxed plan (Hoffmann & Nebel 2001;
-               Keyder & Geffner 2008), inadmissible, guidance only.
+               Keyder & Geffner 2008), inadmissible, guidance only (the default).
+
+The defaults and the measurements behind them are in
+``worker.domains.strips.space``.
 """
 
 from __future__ import annotations

@@ -12,7 +12,7 @@ Problem fields::
                   "add": ["robot at packing"], "delete": ["robot at shelf"],
                   "cost": 2.5}, ...],                 # cost >= 0, default 1
      "heuristic": "lmcut",                            # lmcut | hmax | blind
-     "guidance":  "none"}                             # hff | none
+     "guidance":  "hff"}                              # hff | none
 
 Fact names are any non-empty strings; every fact an action, ``init`` or the
 goal mentions must be listed in ``facts``. An action applies when all ``pre``
