@@ -19,44 +19,23 @@ path (``budget.expansions``, ``problem.start``).
 
 from __future__ import annotations
 
-import math
 from collections.abc import Mapping
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from typing import Any
 
-from marshmallow import RAISE, Schema, ValidationError, fields, post_load, validate
+from marshmallow import ValidationError, fields, post_load, validate
 
 from worker.domains import first_error, load_problem
 from worker.domains.base import DomainKind, SearchSpace
+from worker.domains.fields import StrictFloat, StrictInt, StrictSchema
 from worker.engine import Budget, SearchConfig
 from worker.exceptions import RequestError
 
-__all__ = ["JobRequest", "parse_request", "StrictFloat", "SearchSchema", "BudgetSchema", "JobRequestSchema"]
+__all__ = ["JobRequest", "parse_request", "SearchSchema", "BudgetSchema", "JobRequestSchema"]
 
 
-class StrictFloat(fields.Float):
-    """A number field that accepts JSON numbers only: no strings, no booleans, no NaN/inf."""
-
-    def _deserialize(self, value: Any, attr: Any, data: Any, **kwargs: Any) -> float:
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise ValidationError("must be a number")
-        if not math.isfinite(value):
-            raise ValidationError("must be a finite number")
-        return float(value)
-
-
-def StrictInt(**kwargs: Any) -> fields.Integer:
-    """An integer field that refuses 3.5, "3" and true."""
-    return fields.Integer(strict=True, **kwargs)
-
-
-class _Strict(Schema):
-    class Meta:
-        unknown = RAISE
-
-
-class SearchSchema(_Strict):
+class SearchSchema(StrictSchema):
     weight = StrictFloat(load_default=2.0, validate=validate.Range(min=1.0, max=1000.0))
     schedule = fields.String(load_default="fixed", validate=validate.OneOf(["fixed", "decreasing"]))
     weight_step = StrictFloat(load_default=0.5, validate=validate.Range(min=0.0, min_inclusive=False))
@@ -68,7 +47,7 @@ class SearchSchema(_Strict):
         return SearchConfig(**data)
 
 
-class BudgetSchema(_Strict):
+class BudgetSchema(StrictSchema):
     time_s = StrictFloat(load_default=None, validate=validate.Range(min=0.0, min_inclusive=False))
     deadline = fields.AwareDateTime(load_default=None, default_timezone=timezone.utc)
     expansions = StrictInt(load_default=None, validate=validate.Range(min=1))
@@ -76,7 +55,7 @@ class BudgetSchema(_Strict):
     target_bound = StrictFloat(load_default=None, validate=validate.Range(min=1.0))
 
 
-class JobRequestSchema(_Strict):
+class JobRequestSchema(StrictSchema):
     problem = fields.Raw(required=True)
     search = fields.Nested(SearchSchema, load_default=lambda: SearchConfig())
     budget = fields.Nested(BudgetSchema, load_default=lambda: BudgetSchema().load({}))

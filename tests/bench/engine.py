@@ -26,7 +26,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from tests.bench.reference import SQRT2, grid_textbook, random_grid, textbook_astar  # noqa: E402
+from tests.bench.reference import SQRT2, grid_textbook, random_grid  # noqa: E402
 from worker.engine import Budget, SearchConfig, solve  # noqa: E402
 from worker.engine.core import PythonCore  # noqa: E402
 from worker.request import parse_request  # noqa: E402
@@ -129,27 +129,6 @@ def korf_instances(limit: int):
     return rows[:limit]
 
 
-def tiles_textbook(tiles, width=4):
-    goal = tuple(range(width * width))
-    pos = {v: (i // width, i % width) for i, v in enumerate(goal)}
-
-    def h(s):
-        return sum(abs(i // width - pos[v][0]) + abs(i % width - pos[v][1]) for i, v in enumerate(s) if v)
-
-    def successors(s):
-        b = s.index(0)
-        r, c = divmod(b, width)
-        for dr, dc in ((-1, 0), (1, 0), (0, -1), (0, 1)):
-            nr, nc = r + dr, c + dc
-            if 0 <= nr < width and 0 <= nc < width:
-                j = nr * width + nc
-                t = list(s)
-                t[b], t[j] = t[j], t[b]
-                yield tuple(t), 1.0
-
-    return textbook_astar(tuple(tiles), lambda s: s == goal, successors, h)
-
-
 def bench_korf(limit: int, expansions: int) -> None:
     rows = korf_instances(limit)
     if not rows:
@@ -162,13 +141,10 @@ def bench_korf(limit: int, expansions: int) -> None:
         space = parse_request(doc).space
         (imps, fin), t = timed(lambda: solve(space, SearchConfig(weight=1.0, bound_share=0.0),
                                              Budget(expansions=expansions)))
-        t0 = time.perf_counter()
-        # the textbook A* has no budget: time a bounded share of its work by expansions/s on a copy
         tb_rate = _textbook_rate(tiles, expansions)
         ours = fin.counters.expansions / t
         print(f"{row['id']:>4}{row['optimal_length']:>8}{str(fin.cost):>6}{str(fin.proven_optimal):>8}"
               f"{ours:12.0f}{tb_rate:16.0f}{ours / tb_rate:7.2f}")
-        del t0
 
 
 def _textbook_rate(tiles, expansions: int) -> float:
