@@ -4,6 +4,9 @@ from __future__ import annotations
 
 import dataclasses
 import random
+import sys
+import threading
+import time
 
 import pytest
 
@@ -140,3 +143,29 @@ def test_memory_per_stored_state_is_reported(compiled):
     # per cell: g, h (8 bytes each), parent (4), closed, terrain and goal flags; plus the heaps
     assert core.memory_bytes() >= 23 * 200 * 200
     assert core.bytes_per_state() == pytest.approx(core.memory_bytes() / core.stored)
+
+
+def test_the_search_loop_lets_other_threads_run(compiled):
+    # A step holding the GIL would freeze every other Python thread from one switch interval
+    # after it starts until it returns, so the main thread could not run in its middle half.
+    # The goal is walled in: the whole step is the compiled loop, with no plan to rebuild in Python.
+    rows = ["." * 600] * 597 + ["." * 597 + "###", "." * 597 + "#..", "." * 597 + "#.."]
+    space = GridSpace(GridSchema().load({"rows": rows, "start": [0, 0], "goals": [[599, 599]]}))
+    core = compiled.make_core(space, SearchConfig(weight=1.0, bound_share=0.0))
+    window = []
+
+    def search_once():
+        t0 = time.perf_counter()
+        core.step(10**9)
+        window.extend([t0, time.perf_counter()])
+
+    worker = threading.Thread(target=search_once)
+    ticks = []
+    worker.start()
+    while worker.is_alive():
+        ticks.append(time.perf_counter())
+    worker.join()
+    start, end = window
+    assert core.finished and core.incumbent_path() is None and end - start > 4 * sys.getswitchinterval()
+    middle = [t for t in ticks if start + (end - start) / 4 < t < end - (end - start) / 4]
+    assert len(middle) >= 10, f"{len(middle)} main-thread ticks in the middle half of a {end - start:.3f} s step"
