@@ -51,10 +51,10 @@ def random_doc(rng, n, *, objective, closed, windows, precedence, floats=False):
 class Reference:
     """Exhaustive search over orders; cost-to-go memoized on (last, done, clock)."""
 
-    def __init__(self, doc):
+    def __init__(self, doc, matrix=None):
         self.doc = doc
         self.n = len(doc["tasks"])
-        self.m = doc["setup"]
+        self.m = doc["setup"] if matrix is None else matrix
         self.before = {i: set() for i in range(self.n)}
         ids = [t["id"] for t in doc["tasks"]]
         for a, b in doc.get("precedence", ()):
@@ -161,6 +161,38 @@ def test_eight_tasks_with_windows_and_a_large_weight(objective):
         assert fin.proven_optimal and fin.cost == pytest.approx(opt)  # source: exhaustive enumeration
         for imp in imps:
             assert imp.cost / opt <= imp.bound * (1 + 1e-9)
+
+
+@pytest.mark.parametrize("metric", ["euclidean", "manhattan"])
+@pytest.mark.parametrize("objective", ["setup", "makespan"])
+def test_coordinates_with_windows_match_exhaustive_enumeration(metric, objective):
+    rng = random.Random(len(metric) + len(objective))
+    checked = 0
+    for k in range(10):
+        doc = random_doc(rng, rng.randint(3, 7), objective=objective, closed=k % 2 == 0, windows=True,
+                         precedence=k % 3 == 0)
+        del doc["setup"]
+        doc["metric"] = metric
+        for t in doc["tasks"]:
+            t.update(x=rng.randint(0, 20), y=rng.randint(0, 20))
+        if k % 2 == 0 or k % 4 == 1:  # a closed tour needs a start; open ones go both ways
+            doc["start"] = {"x": 10, "y": 0}
+        try:
+            kind, problem = load_problem(doc)
+        except ProblemError as err:  # a random due may be impossible alone
+            assert err.field.endswith(".due")
+            continue
+        opt = Reference(doc, problem.matrix).optimum()  # source: exhaustive enumeration
+        space = kind.build(problem)
+        imps, fin = solve(space, SearchConfig(weight=2.0), Budget(expansions=200_000))
+        if opt is None:
+            assert fin.proven_infeasible
+        else:
+            assert fin.proven_optimal and fin.cost == pytest.approx(opt, abs=1e-9)
+            steps = space.render_plan(fin.path.states, fin.path.actions, fin.path.costs)
+            assert kind.validate(problem, steps) == pytest.approx(opt, abs=1e-9)
+        checked += 1
+    assert checked >= 5
 
 
 def walk(space, ref, last, done, clock, cost, out):

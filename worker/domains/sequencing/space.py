@@ -109,6 +109,7 @@ class SequencingSpace:
         self._retired: set[Any] = set()
         # a stuck pilot scores worse than any finished one: more than any plan can cost
         self._stuck = sum(map(max, self.c)) + sum(self.dur) + max(self.rel) + 1.0
+        self._near: list[list[int]] = []
         self.guidance = self._pilot if self.timed else None
         if not self.timed and n <= DENSE_MAX_TASKS:
             self.dense_size = (1 << n) * n1
@@ -118,8 +119,14 @@ class SequencingSpace:
         if self.bound is not None:
             return
         if self.timed:
-            self.dstar = all_pairs_shortest(self.c)
+            # Travel between points obeys the triangle inequality already (the
+            # start without a location is never passed through); a setup matrix
+            # need not, and then the quickest chain can beat the direct entry.
+            metric = self.problem.setup is None
+            self.dstar = self.c if metric else all_pairs_shortest(self.c)
             self._dead = not self._windows_possible()
+            tasks = range(1, self.n1)
+            self._near = [sorted(tasks, key=row.__getitem__) for row in self.c]
         self.bound = ChangeoverBound(self.c, self.closed, node_cost=self.dur if self.makespan else None)
 
     # -- the SearchSpace protocol ----------------------------------------------
@@ -291,16 +298,20 @@ class SequencingSpace:
     def _pilot(self, state: tuple) -> float:
         """Return the cost of finishing from ``state`` by starting next whatever can start soonest."""
         n1, full, c, rel, dur, due_lim, pred = self.n1, self.full, self.c, self.rel, self.dur, self.due_lim, self.pred
+        near = self._near
         code, clock = state[0], state[1]
         last, mask = code % n1, code // n1
         begin, changes = clock, 0.0
         while mask != full:
             row = c[last]
             best, best_start = 0, INF
-            for r in range(1, n1):
+            # candidates by rising changeover: once arrival alone is no sooner, nothing later is
+            for r in near[last]:
+                start = clock + row[r]
+                if start >= best_start:
+                    break
                 if mask >> (r - 1) & 1 or pred[r] & ~mask:
                     continue
-                start = clock + row[r]
                 if rel[r] > start:
                     start = rel[r]
                 if start < best_start and start + dur[r] <= due_lim[r]:
