@@ -193,7 +193,7 @@ def main() -> None:
               f" {lm / hm:5.2f} {ff:7.0f} {ff / hm:5.2f} | {lm_txt:<36} | {hm_txt:<36} | {ratio}", flush=True)
         if label.startswith("gen-"):
             generated = task
-    print(f"\nguidance at the default search settings (weight 2, fixed; LM-cut bound), none vs h_FF:")
+    print("\nguidance at the default search settings (weight 2, fixed; LM-cut bound), none vs h_FF:")
     print(f"{'instance':<22} | {'none: first plan':<22} {'proof':>16} | {'hff: first plan':<22} {'proof':>16}"
           f" | proof time hff/none")
     for label, domain_text, problem_text, _ in instances(args.quick):

@@ -351,6 +351,8 @@ def _assemble(domain: Domain, problem: Problem, rules: list[_Rule], found: list[
                 reason = f"goal {a.text()} is unreachable, even ignoring delete effects"
             else:
                 reason = f"goal {'' if lit.positive else '(not '}{a.text()}{'' if lit.positive else ')'} can never hold"
-    task = GroundTask(names, tuple(init), tuple(sorted(set(goal))), tuple(sorted(set(goal_not))), actions,
-                      scale, reason)
-    return prune_unreachable(task)
+    task = prune_unreachable(GroundTask(names, tuple(init), tuple(sorted(set(goal))), tuple(sorted(set(goal_not))),
+                                        actions, scale, reason))
+    logger.debug("grounded %s: %d facts, %d actions%s", problem.name, len(task.facts), len(task.actions),
+                 f"; infeasible: {task.infeasible}" if task.infeasible else "")
+    return task

@@ -94,6 +94,8 @@ class StripsSpace:
             estimate = make_estimate(heuristic, task, relaxed)
             self.heuristic = estimate if heuristic == "blind" else _Cached(estimate)
             self.guidance = _Cached(make_estimate("hff", task, relaxed)) if guidance == "hff" else None
+        logger.debug("action model: %d facts, %d actions, bound %s, order %s", len(task.facts), len(task.actions),
+                     heuristic, guidance)
 
     def _build_index(self) -> None:
         task = self.task
