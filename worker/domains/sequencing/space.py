@@ -16,7 +16,8 @@ every task is done.
 
 Dominance. The engine merges equal states only. Of two timed states with
 the same ``code``, one with cost <= and clock <= the other's (one strictly)
-*dominates* it: every completion of the dominated one is also feasible from
+*dominates* it (under ``makespan`` cost and clock coincide, so the
+earlier clock wins): every completion of the dominated one is also feasible from
 the dominating one (tasks start at max(arrival, release), so an earlier
 clock never starts anything later, and no window is missed that the later
 clock meets) and costs no more. So ``successors`` keeps, per ``code``, the
