@@ -16,7 +16,8 @@ from libc.string cimport memcpy
 
 from worker.engine.kernels._search cimport SearchKernel
 
-# Above this many goals the domain measures h to the goals' bounding box.
+# Above this many goals the domain measures h to the goals' bounding box
+# (a spec may say otherwise with "exact_goals").
 EXACT_GOALS = 8
 
 
@@ -79,7 +80,7 @@ cdef class GridKernel(SearchKernel):
                 raise ValueError("grid kernel spec: goal outside the grid")
             self.goal[g] = 1
             self.goal_r[k], self.goal_c[k] = divmod(g, w)
-        self.box = self.ngoals > EXACT_GOALS
+        self.box = self.ngoals > int(spec.get("exact_goals", EXACT_GOALS))
         self.top = min(g // w for g in goals)
         self.bottom = max(g // w for g in goals)
         self.left = min(g % w for g in goals)
