@@ -129,7 +129,7 @@ class Timed:
 
 def prove(task, heuristic: str, limit: float) -> tuple[object, float, float]:
     """Run weight-1 A* to a proof (or the time limit); return (finished, seconds, share in the estimate)."""
-    space = StripsSpace(task, heuristic)
+    space = StripsSpace(task, heuristic, "none")
     timed = Timed(space.heuristic)
     space.heuristic = timed
     t0 = time.perf_counter()
@@ -173,7 +173,7 @@ def main() -> None:
         task = ground(domain, parse_problem(problem_text, domain))
         tg = time.perf_counter() - t0
         relaxed = RelaxedTask.from_task(task)
-        states = sample_states(StripsSpace(task, "blind"), args.states)
+        states = sample_states(StripsSpace(task, "blind", "none"), args.states)
         hm, lm, ff = (rate(cls(task, relaxed), states) for cls in (HMax, LMCut, HFF))
         slow = args.quick and (label == "prob03" or label.startswith("gen-"))
         if slow:
