@@ -54,6 +54,8 @@ def _text() -> fields.String:
 
 
 class PddlSchema(StrictSchema):
+    """Load the PDDL texts and search settings (the texts are parsed when the space is built)."""
+
     domain_text = _text()
     problem_text = _text()
     heuristic = fields.String(load_default=DEFAULT_HEURISTIC, validate=validate.OneOf(ADMISSIBLE))

@@ -123,6 +123,7 @@ class _Reach:
         self._index: dict[str, dict[int, dict[str, list[tuple[str, ...]]]]] = {}
 
     def add(self, pred: str, args: tuple[str, ...]) -> bool:
+        """Record an atom; return True when it is new."""
         rel = self.rel.setdefault(pred, set())
         if args in rel:
             return False
@@ -132,6 +133,7 @@ class _Reach:
         return True
 
     def matching(self, pred: str, pos: int, obj: str) -> list[tuple[str, ...]]:
+        """Return the reached tuples of ``pred`` with ``obj`` at position ``pos``."""
         by_pos = self._index.setdefault(pred, {})
         idx = by_pos.get(pos)
         if idx is None:
@@ -150,6 +152,7 @@ class _Work:
         self.tried = 0
 
     def tick(self, n: int = 1) -> None:
+        """Count ``n`` more candidates; raise LimitError past the cap."""
         self.tried += n
         if self.tried > MAX_BINDINGS_TRIED:
             raise LimitError("problem_text", f"grounding tried more than {MAX_BINDINGS_TRIED} parameter bindings; "

@@ -72,6 +72,8 @@ def _facts(**kw: Any) -> fields.List:
 
 
 class ActionSchema(StrictSchema):
+    """Load one action record."""
+
     name = fields.String(required=True)
     pre = _facts(load_default=list)
     pre_not = _facts(load_default=list)
@@ -89,6 +91,8 @@ def _error(path: Sequence[str | int], message: str) -> ValidationError:
 
 
 class StripsSchema(StrictSchema):
+    """Load and check a JSON action model into a ``StripsProblem``."""
+
     facts = _facts(required=True, validate=validate.Length(min=1, max=MAX_FACTS))
     init = _facts(required=True)
     goal = _facts(required=True)

@@ -56,8 +56,11 @@ def _infinite(state: int) -> float:
 
 
 class _Cached:
-    """Remember an estimate per state: the engine evaluates a state again each time it is
-    generated and pruned without being stored (a third of LM-cut calls under weight 2)."""
+    """Remember an estimate per state.
+
+    The engine evaluates a state again each time it is generated and pruned
+    without being stored: a third of LM-cut calls under weight 2.
+    """
 
     __slots__ = ("fn", "memo", "cap")
 
