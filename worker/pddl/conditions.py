@@ -84,6 +84,8 @@ def parse_atom(scope: Scope, node: SList) -> Atom:
         fail(scope.field, node, "expected a predicate name after '('")
     name = head.text
     if name == EQUALITY:
+        if any(isinstance(t, SList) for t in node.items[1:]):
+            fail(scope.field, node, f"numeric comparison (=) on a function is not supported ({_SUBSET})")
         if len(node.items) != 3:
             fail(scope.field, node, "equality takes exactly two terms")
         return Atom(EQUALITY, (_term(scope, node.items[1]), _term(scope, node.items[2])))

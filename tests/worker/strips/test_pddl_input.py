@@ -161,6 +161,7 @@ BAD_DOMAIN = [
     ("(and (at ?t depot)", "(and (exists (?b - bay) (busy ?b)) (at ?t depot)",
      "existential quantifier (exists)", "(exists"),
     ("(not (loaded ?t)))", "(not (loaded ?t)) (> (lane depot depot) 0))", "numeric comparison (>)", "(> (lane"),
+    ("(not (loaded ?t)))", "(not (loaded ?t)) (= (lane depot depot) 0))", "numeric comparison (=)", "(= (lane"),
     ("(increase (total-cost) 1.5)", "(decrease (total-cost) 1.5)", "numeric effect (decrease)", "(decrease"),
     ("(increase (total-cost) 1.5)", "(increase (lane depot depot) 1)", "numeric fluents other than", "(lane depot depot) 1"),
     (":action-costs)", ":action-costs :durative-actions)", "requirement :durative-actions", ":durative-actions"),
