@@ -212,12 +212,18 @@ class RunningSlots:
 
     def admit(self, tenant: str, job_id: str, cap: int, is_active: Callable[[str], bool],
               horizon_s: float) -> None:
-        """Take a slot for ``job_id`` or raise LimitError naming ``max_running_jobs``."""
-        running = self.active(tenant, is_active)
-        if len(running) >= cap:
-            raise LimitError("", f"{len(running)} jobs are already queued or running for this tenant, "
-                             f"which is the cap max_running_jobs={cap}", cap="max_running_jobs", limit=cap)
+        """Take a slot for ``job_id`` or raise LimitError naming ``max_running_jobs``.
+
+        Below the cap this is two Redis calls; only a tenant at its cap pays for
+        asking ``is_active`` about each of its (at most ``cap``) jobs.
+        """
         key = self._key(tenant)
+        self.redis.zremrangebyscore(key, 0, time.time())
+        if self.redis.zcard(key) >= cap:
+            running = self.active(tenant, is_active)
+            if len(running) >= cap:
+                raise LimitError("", f"{len(running)} jobs are already queued or running for this tenant, "
+                                 f"which is the cap max_running_jobs={cap}", cap="max_running_jobs", limit=cap)
         self.redis.zadd(key, {job_id: time.time() + horizon_s + SLOT_SLACK_S})
         self.redis.expire(key, int(horizon_s + 2 * SLOT_SLACK_S))
 
