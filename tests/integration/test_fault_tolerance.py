@@ -47,7 +47,7 @@ SMALL = {"problem": {"domain": "grid", "rows": ["....", ".##.", "...."], "moves"
 @pytest.fixture()
 def stack(tmp_path):
     require_redis_server()
-    s = Stack(tmp_path, ENV)
+    s = Stack(tmp_path, ENV, fsync="always")  # a killed Redis must give back every write
     try:
         yield s
     finally:

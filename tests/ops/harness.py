@@ -91,9 +91,11 @@ def child_env(extra: Mapping[str, str] | None = None) -> dict[str, str]:
 class RedisServer:
     """A redis-server of our own with append-only persistence in ``directory``."""
 
-    def __init__(self, directory: Path, port: int | None = None) -> None:
+    def __init__(self, directory: Path, port: int | None = None, fsync: str = "everysec") -> None:
         self.directory = directory
         self.port = port or free_port()
+        # "always" when a test kills Redis right after a write and needs that write back.
+        self.fsync = fsync
         self.proc: subprocess.Popen | None = None
 
     @property
@@ -107,7 +109,7 @@ class RedisServer:
         self.directory.mkdir(parents=True, exist_ok=True)
         self.proc = subprocess.Popen(
             [exe, "--port", str(self.port), "--bind", "127.0.0.1", "--appendonly", "yes",
-             "--appendfsync", "always", "--dir", str(self.directory), "--save", "",
+             "--appendfsync", self.fsync, "--dir", str(self.directory), "--save", "",
              "--maxmemory-policy", "noeviction"],
             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
         import redis
@@ -211,10 +213,11 @@ def require_redis_server() -> None:
 class Stack:
     """A private Redis, the API and any number of workers, with one tenant key; ``close`` ends them all."""
 
-    def __init__(self, directory: Path, env: Mapping[str, str] | None = None, web_workers: int = 2) -> None:
+    def __init__(self, directory: Path, env: Mapping[str, str] | None = None, web_workers: int = 2,
+                 fsync: str = "everysec") -> None:
         self.directory = directory
         self.env = dict(env or {})
-        self.redis = RedisServer(directory / "redis").start()
+        self.redis = RedisServer(directory / "redis", fsync=fsync).start()
         self.api = Service(self.redis.url, directory / "logs", self.env, workers=web_workers).start()
         self.workers: list[Worker] = []
         self._keys: dict[str, str] = {}
