@@ -14,6 +14,7 @@ reads the job's cancel key at most every ``cancel_poll_s`` seconds.
 
 from __future__ import annotations
 
+import contextvars
 import json
 import logging
 import threading
@@ -163,7 +164,10 @@ class Publisher:
                                   args=[utc_now(), self._alive_ms, event, self.ttl]))
         if status != JobStatus.RUNNING.value:
             return status
-        self._beat_thread = threading.Thread(target=self._beat, name=f"heartbeat-{self.job_id[:8]}", daemon=True)
+        # Run in a copy of this context, so the beat's log lines still know their job (RQ keeps
+        # the current job in a context variable).
+        self._beat_thread = threading.Thread(target=contextvars.copy_context().run, args=(self._beat,),
+                                             name=f"heartbeat-{self.job_id[:8]}", daemon=True)
         self._beat_thread.start()
         return JobStatus.RUNNING
 
