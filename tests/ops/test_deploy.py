@@ -111,3 +111,44 @@ def test_redis_conf_and_containerfile():
     assert "USER boundwise" in text
     cmd = next(line for line in text.splitlines() if line.startswith("CMD "))
     assert yaml.safe_load(cmd[4:]) == API_COMMAND
+
+
+def test_the_gunicorn_config_loads_with_the_app():
+    import subprocess
+    import sys
+
+    root = DEPLOY.parent
+    out = subprocess.run([sys.executable, "-m", "gunicorn", "--check-config", "--config",
+                          str(DEPLOY / "gunicorn.conf.py"), "service.app:create_app()"],
+                         cwd=root, capture_output=True, text=True, timeout=60,
+                         env={**__import__("os").environ, "PYTHONPATH": str(root)})
+    assert out.returncode == 0, out.stderr[-2000:]
+
+
+def test_gunicorn_settings_thread_workers_and_drop_dead_workers_metrics():
+    import runpy
+
+    settings = runpy.run_path(str(DEPLOY / "gunicorn.conf.py"))  # gunicorn reads the file the same way
+    assert settings["worker_class"] == "gthread" and settings["threads"] >= 2
+    assert callable(settings["child_exit"]) and callable(settings["on_starting"])
+
+
+def test_the_commands_the_deploy_files_run_exist():
+    from service.cli import build_parser
+
+    parser = build_parser()
+    for argv in (WORKER_COMMAND[1:], ["worker", "--name", "host-1"]):
+        args = parser.parse_args(argv)
+        assert args.command == "worker" and callable(args.func)
+    import fakeredis
+
+    from service.app import create_app
+    from service.config import load
+
+    app = create_app(load({"BOUNDWISE_AUTH": "on"}), redis=fakeredis.FakeRedis())
+    rules = {r.rule for r in app.url_map.iter_rules()}
+    assert {"/healthz", "/readyz", "/metrics"} <= rules
+    client = app.test_client()
+    # the probes need no key: a load balancer or kubelet has none
+    assert client.get("/healthz").status_code == 200
+    assert client.get("/readyz").status_code in (200, 503)
