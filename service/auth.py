@@ -31,6 +31,8 @@ from typing import Any
 
 from flask import Flask, Response, current_app, g, jsonify, request
 
+from service.errors import error_body
+
 logger = logging.getLogger(__name__)
 
 __all__ = [
@@ -205,7 +207,7 @@ def can_see(owner: str | None) -> bool:
 
 
 def _unauthorized(message: str) -> Response:
-    response = jsonify({"error": {"code": "unauthorized", "message": message, "field": "Authorization"}})
+    response = jsonify(error_body("unauthorized", message, "Authorization"))
     response.status_code = 401
     response.headers["WWW-Authenticate"] = 'Bearer realm="boundwise"'
     return response

@@ -31,6 +31,7 @@ from typing import Any
 from flask import Flask, Response, g, jsonify, request
 from werkzeug.exceptions import RequestEntityTooLarge
 
+from service.errors import error_body
 from worker.engine import Budget
 from worker.exceptions import LimitError
 from worker.request import JobRequest
@@ -241,7 +242,7 @@ def rate_key() -> str:
 
 
 def _error(status: int, code: str, message: str, **extra: Any) -> Response:
-    response = jsonify({"error": {"code": code, "message": message, "field": "", **extra}})
+    response = jsonify(error_body(code, message, **extra))
     response.status_code = status
     return response
 
