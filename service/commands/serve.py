@@ -94,6 +94,12 @@ def run(args: argparse.Namespace) -> int:
     if not 0 < args.port < 65536 or (args.workers is not None and args.workers < 0):
         sys.stderr.write("error: --port must be 1-65535 and --workers at least 0\n")
         return 2
+    local = args.host in ("127.0.0.1", "::1", "localhost")
+    if args.no_auth and not local:
+        # Without keys anyone who reaches the port can read every job: only on this machine.
+        sys.stderr.write(f"error: --no-auth serves only on a loopback address (--host 127.0.0.1), "
+                         f"not {args.host}\n")
+        return 2
     env = dict(os.environ)
     standin = None
     if not env.get("REDIS_URL"):
@@ -103,7 +109,8 @@ def run(args: argparse.Namespace) -> int:
             sys.stderr.write(f"error: {err}\n")
             return 1
         env["REDIS_URL"] = standin.url
-        env.setdefault("BOUNDWISE_AUTH", "off")
+        if local:
+            env.setdefault("BOUNDWISE_AUTH", "off")
     if args.no_auth:
         env["BOUNDWISE_AUTH"] = "off"
     n_workers = args.workers if args.workers is not None else (2 if standin is not None else 0)
