@@ -222,6 +222,8 @@ def init_app(app: Flask, store: Callable[[], KeyStore]) -> None:
     """
     app.config.setdefault("AUTH_REQUIRED", True)
     app.config.setdefault("AUTH_OPEN_PATHS", DEFAULT_OPEN_PATHS)
+    if not app.config["AUTH_REQUIRED"]:
+        logger.warning("API keys are off: every caller acts as tenant %r and sees every job", LOCAL_TENANT)
 
     @app.before_request
     def _require_key() -> Response | None:
