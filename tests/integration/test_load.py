@@ -11,6 +11,7 @@ from datetime import datetime
 
 import pytest
 import requests
+from prometheus_client.parser import text_string_to_metric_families
 
 from tests.ops.harness import Stack, require_redis_server, wait_for
 
@@ -69,7 +70,9 @@ def _events(stack: Stack, job_id: str) -> list[tuple[str, dict]]:
 @pytest.fixture()
 def stack(tmp_path):
     require_redis_server()
-    s = Stack(tmp_path, ENV, web_workers=2)
+    prom = tmp_path / "prom"  # one multiprocess directory: the API and the workers report together
+    prom.mkdir()
+    s = Stack(tmp_path, {**ENV, "PROMETHEUS_MULTIPROC_DIR": str(prom)}, web_workers=2)
     try:
         for _ in range(WORKERS):
             s.worker()
@@ -134,5 +137,18 @@ def test_two_hundred_jobs_at_once_all_finish_on_time_with_every_plan(stack):
         assert [e["revision"] for e in improvements] == list(range(1, d["best"]["revision"] + 1))
         assert all(e["plan"] for e in improvements), "each improvement event carries its plan"
         assert events[-1][0] == "finished"
+    # The metrics of every process add up: the API counted the submits, the workers the outcomes.
+    samples = {}
+    for family in text_string_to_metric_families(requests.get(stack.api.url + "/metrics", timeout=10).text):
+        for sample in family.samples:
+            samples[(sample.name, tuple(sorted(sample.labels.items())))] = sample.value
+    submitted = sum(v for (name, _), v in samples.items() if name == "boundwise_jobs_submitted_total")
+    finished = {dict(labels)["status"]: v for (name, labels), v in samples.items()
+                if name == "boundwise_jobs_finished_total"}
+    assert submitted == JOBS
+    assert sum(finished.values()) == JOBS
+    assert finished.get("bounded", 0) == sum(d["status"] == "bounded" for d in docs)
+    assert samples[("boundwise_first_plan_seconds_count", ())] == len(with_plans)
+    assert samples[("boundwise_queue_depth", (("queue", "default"),))] == 0
     print(f"\n{JOBS} jobs: submitted in {submitted_in:.2f} s, all final after {finished_in:.2f} s "
           f"with {WORKERS} workers")

@@ -82,7 +82,7 @@ def child_env(extra: Mapping[str, str] | None = None) -> dict[str, str]:
     """Return the environment for child processes: this checkout first on the path."""
     env = dict(os.environ)
     env["PYTHONPATH"] = str(ROOT) + (os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else "")
-    env.pop("PROMETHEUS_MULTIPROC_DIR", None)
+    env.pop("PROMETHEUS_MULTIPROC_DIR", None)  # only a test that asks for one shares a directory
     if extra:
         env.update(extra)
     return env
