@@ -52,7 +52,7 @@ def test_domains_do_not_reach_into_the_engine():  # common practice: domains beh
 
 def test_top_level_layout_is_the_documented_one():
     allowed = {"pyproject.toml", "README.md", "DEVELOPERS.md", "service", "worker", "tests", "deploy",
-               "openapi", "setup.py", "MANIFEST.in"}
+               "openapi"}
     tracked = {p.name for p in ROOT.iterdir() if not p.name.startswith(".") and p.name not in
                {"build", "dist", "__pycache__"} and not p.name.endswith(".egg-info")}
     assert tracked <= allowed, f"unexpected top-level entries: {sorted(tracked - allowed)}"
