@@ -169,3 +169,18 @@ def test_rate_limits_can_be_switched_off():
     _, key = store.create("alpha")
     h = {"Authorization": f"Bearer {key}"}
     assert {app.test_client().post("/v1/jobs", json={}, headers=h).status_code for _ in range(5)} == {202}
+
+
+def test_every_size_a_built_in_domain_reports_has_a_cap():
+    from worker.domains import kinds, load_problem
+
+    checked = 0
+    for name, kind in sorted(kinds().items()):
+        if kind.example is None:
+            continue
+        _, problem = load_problem(dict(kind.example))
+        sizes = kind.sizes(problem)
+        assert sizes, f"{name} reports no size, so nothing caps its problems"
+        assert set(sizes) <= set(limits.DEFAULT_SIZE_CAPS), (name, sorted(sizes))
+        checked += 1
+    assert checked >= 4
