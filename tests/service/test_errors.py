@@ -167,6 +167,9 @@ def test_redis_down_is_503_with_retry_after(config):
         assert response.headers["Retry-After"]
     ready = client.get("/readyz")
     assert ready.status_code == 503 and ready.get_json()["redis"] is False
+    from worker.engine import kernels
+
+    assert ready.get_json()["search_backend"] == kernels.BACKEND
 
 
 _json = st.recursive(st.none() | st.booleans() | st.integers() | st.floats(allow_nan=False) | st.text(max_size=8),
