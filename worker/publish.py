@@ -32,12 +32,15 @@ logger = logging.getLogger(__name__)
 __all__ = ["Publisher", "status_of", "utc_now"]
 
 # KEYS: state, events, plans, history, alive.  ARGV: event type, event JSON, TTL s,
-# revision ('' for none), plan JSON, history JSON, '1' to drop the heartbeat, then
-# field/value pairs for the state hash. Returns the stream id, or nil when the job
-# is no longer running (nothing is written then).
+# revision ('' for none), plan JSON, history JSON, '1' to drop the heartbeat, this
+# attempt's number, then field/value pairs for the state hash. Returns the stream id,
+# or nil when the job is no longer running, or runs as a later attempt (a worker
+# cut off long enough to be reported lost comes back to find its job re-run):
+# nothing is written then.
 _PUBLISH = """
 if redis.call('HGET', KEYS[1], 'status') ~= 'running' then return false end
-if #ARGV > 7 then redis.call('HSET', KEYS[1], unpack(ARGV, 8)) end
+if redis.call('HGET', KEYS[1], 'attempts') ~= ARGV[8] then return false end
+if #ARGV > 8 then redis.call('HSET', KEYS[1], unpack(ARGV, 9)) end
 if ARGV[4] ~= '' then
   redis.call('HSET', KEYS[3], ARGV[4], ARGV[5])
   redis.call('RPUSH', KEYS[4], ARGV[6])
@@ -66,9 +69,11 @@ redis.call('EXPIRE', KEYS[3], ttl)
 return 'running'
 """
 
-# KEYS: state, alive.  ARGV: heartbeat TTL ms.  Refreshes the heartbeat of a running job.
+# KEYS: state, alive.  ARGV: heartbeat TTL ms, attempt number.  Refreshes the heartbeat
+# of a running job while this attempt is the job's current one.
 _HEARTBEAT = """
 local s = redis.call('HGET', KEYS[1], 'status')
+if s == 'running' and redis.call('HGET', KEYS[1], 'attempts') ~= ARGV[2] then return 'superseded' end
 if s == 'running' then redis.call('SET', KEYS[2], '1', 'PX', ARGV[1]) end
 return s
 """
@@ -175,7 +180,8 @@ class Publisher:
         period = self.setting("heartbeat_s", 1.0)
         while not self._beat_stop.wait(period):
             try:
-                status = text(self._heartbeat(keys=[self.keys.state, self.keys.alive], args=[self._alive_ms]))
+                status = text(self._heartbeat(keys=[self.keys.state, self.keys.alive],
+                                              args=[self._alive_ms, str(self.attempt)]))
             except RedisError as err:  # a blip: the next beat may get through before the TTL runs out
                 logger.warning("heartbeat of job %s failed: %s", self.job_id, err)
                 continue
@@ -213,7 +219,7 @@ class Publisher:
                            "" if revision is None else str(revision),
                            "" if plan is None else dumps(plan),
                            "" if history is None else dumps(history),
-                           "1" if final else "0"]
+                           "1" if final else "0", str(self.attempt)]
         for name, value in fields.items():
             args += [name, value if isinstance(value, str) else dumps(value)]
         keys = [self.keys.state, self.keys.events, self.keys.plans, self.keys.history, self.keys.alive]

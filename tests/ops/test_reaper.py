@@ -136,3 +136,24 @@ def test_attempt_history_adds_the_current_attempt():
                               "revision": 2, "cost": 7.0}]
     assert attempt_history([], 0, "queued", None, None, 0, None) == []
     assert attempt_history([lost], 1, "queued", None, None, 1, None) == [lost]
+
+
+def test_a_cut_off_attempt_that_comes_back_writes_nothing_over_the_retry(client, redis):
+    job_id = _submit(client, retries=1)
+    Queue("default", connection=redis).remove(job_id)
+    zombie = Publisher(redis, job_id)
+    zombie.load()
+    zombie.start()
+    zombie.stop_heartbeat()  # cut off from Redis: no beats, so the job is reported lost ...
+    redis.delete(job_keys(job_id).alive)
+    assert Reaper(redis).reap(job_id) == "requeued"
+    retry = Publisher(redis, job_id)  # ... and another worker runs it again
+    retry.load()
+    assert retry.start().value == "running"
+    retry.stop_heartbeat()
+    event = {"cost": 5.0, "lower_bound": 5.0, "bound": 1.0, "weight": 1.0, "expansions": 1, "generated": 1,
+             "reopened": 0, "stored": 1, "elapsed_s": 0.01, "plan": [{"action": "E", "cost": 5.0, "state": [0, 3]}]}
+    assert zombie.improvement(event) is False, "the old attempt publishes nothing"
+    assert zombie.cancelled(), "and is told to stop"
+    assert retry.improvement(event) is True
+    assert client.get(f"/v1/jobs/{job_id}").get_json()["best"]["revision"] == 1
