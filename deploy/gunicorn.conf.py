@@ -33,6 +33,21 @@ worker_tmp_dir = "/dev/shm" if os.path.isdir("/dev/shm") else None
 accesslog = None  # the app writes its own access line (service.logs), with the request id
 errorlog = "-"
 loglevel = _config.log_level.lower()
+if _config.log_format == "json":
+    # gunicorn's own lines (start, worker boot and exit, timeouts) as JSON too: its
+    # loggers hand them to the root handler that ``on_starting`` sets.
+    logconfig_dict = {
+        "version": 1,
+        "disable_existing_loggers": False,
+        "root": {"level": _config.log_level, "handlers": ["json"]},
+        "loggers": {
+            "gunicorn.error": {"level": _config.log_level, "handlers": [], "propagate": True},
+            # the app's own access line already says it, with the request id
+            "gunicorn.access": {"level": "WARNING", "handlers": [], "propagate": True},
+        },
+        "handlers": {"json": {"class": "logging.StreamHandler", "formatter": "json", "stream": "ext://sys.stderr"}},
+        "formatters": {"json": {"()": "service.logs.JsonFormatter"}},
+    }
 
 
 def on_starting(server: object) -> None:

@@ -30,7 +30,8 @@ from flask import Flask, Response, g, request
 
 logger = logging.getLogger(__name__)
 
-__all__ = ["JsonFormatter", "configure", "init_app", "bind_job", "request_id", "job_id", "REQUEST_ID_HEADER"]
+__all__ = ["JsonFormatter", "configure", "init_app", "bind_job", "bind_jobs", "bound", "request_id", "job_id",
+           "REQUEST_ID_HEADER"]
 
 REQUEST_ID_HEADER = "X-Request-ID"
 _REQUEST_ID_OK = re.compile(r"^[A-Za-z0-9._:-]{1,128}$")
@@ -89,6 +90,23 @@ def bound(*, rid: str | None = None, jid: str | None = None) -> Iterator[None]:
     finally:
         for var, token in reversed(tokens):
             var.reset(token)
+
+
+def bind_jobs(worker_class: type) -> type:
+    """Return a subclass of an RQ worker class whose lines, while it runs a job, carry the job's ids.
+
+    The ids are bound around ``execute_job``, so both the worker's own lines
+    about the job and every line of the work-horse it forks (which inherits the
+    binding) carry the job id and the id of the request that submitted it.
+    """
+    class BoundWorker(worker_class):  # type: ignore[misc, valid-type]
+        def execute_job(self, job: Any, queue: Any) -> Any:
+            rid = (job.meta or {}).get("request_id") or None
+            with bound(rid=rid, jid=job.id):
+                return super().execute_job(job, queue)
+
+    BoundWorker.__name__ = BoundWorker.__qualname__ = worker_class.__name__
+    return BoundWorker
 
 
 class JsonFormatter(logging.Formatter):

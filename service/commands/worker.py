@@ -68,7 +68,7 @@ def run(args: argparse.Namespace) -> int:
     except redis.RedisError as err:
         sys.stderr.write(f"error: cannot reach Redis at REDIS_URL: {err}\n")
         return 1
-    cls = SimpleWorker if args.no_fork else Worker
+    cls = logs.bind_jobs(SimpleWorker if args.no_fork else Worker)  # job and request ids on every job line
     worker = cls([Queue(q, connection=connection) for q in queues], connection=connection, name=args.name)
     logger.info("worker %s serving %s", worker.name, ", ".join(queues))
     # Every worker watches for jobs whose worker died (one sweep at a time across

@@ -113,3 +113,32 @@ def test_plain_text_format_for_a_terminal(captured):
     logs.configure("WARNING", stream=stream, fmt="text")
     log.warning("plain %s", "words")
     assert stream.getvalue().rstrip().endswith("boundwise.test.logs: plain words")
+
+
+@pytest.mark.redis
+@pytest.mark.e2e
+def test_every_line_of_the_api_and_a_worker_is_json_with_both_ids(tmp_path):
+    import requests as http
+
+    from tests.ops.harness import Stack, require_redis_server
+
+    require_redis_server()
+    stack = Stack(tmp_path, {"BOUNDWISE_LOG_FORMAT": "json"})
+    try:
+        stack.worker()
+        body = {"problem": {"domain": "grid", "rows": ["...", "..."], "moves": 4, "start": [1, 0],
+                            "goals": [[0, 2]]}}
+        r = http.post(stack.api.url + "/v1/jobs", json=body, timeout=10,
+                      headers={**stack.headers(), "X-Request-ID": "from-the-dispatcher"})
+        job_id = r.json()["id"]
+        stack.wait_job(job_id, lambda d: d["status"] == "optimal", 30)
+    finally:
+        stack.close()
+    lines = [line for f in sorted((tmp_path / "logs").glob("*.log")) for line in f.read_text().splitlines()]
+    parsed = [json.loads(line) for line in lines if line.strip()]
+    assert len(parsed) == len([line for line in lines if line.strip()]), "every line is one JSON object"
+    assert all("request_id" in p and "job_id" in p for p in parsed)
+    mine = [p for p in parsed if p["request_id"] == "from-the-dispatcher"]
+    assert any(p["logger"] == "boundwise.access" and p["status"] == 202 for p in mine)
+    # the worker's lines about the job carry the job id and the id of the request that made it
+    assert any(p["job_id"] == job_id and p["logger"].startswith(("worker.", "rq.")) for p in mine)
