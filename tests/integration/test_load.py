@@ -40,7 +40,7 @@ def floor(n: int, seed: int, blocked: float = 0.2) -> list[str]:
 def job(i: int) -> dict:
     """Most jobs are small and end proven; every seventh is big and ends on its time budget."""
     big = i % 7 == 0
-    n = 250 if big else 24
+    n = 500 if big else 24
     return {"problem": {"domain": "grid", "rows": floor(n, seed=i), "moves": 8, "start": [n - 1, 0],
                         "goals": [[0, n - 1]]},
             "search": {"weight": 3.0 if big else 1.5},
