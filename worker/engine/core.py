@@ -54,6 +54,18 @@ class _DefaultDict(dict):
         return self.default
 
 
+class _GoalTest:
+    """Make ``state in goals`` call the space's ``is_goal`` when it has no goal set."""
+
+    __slots__ = ("is_goal",)
+
+    def __init__(self, is_goal: Any) -> None:
+        self.is_goal = is_goal
+
+    def __contains__(self, state: Any) -> bool:
+        return bool(self.is_goal(state))
+
+
 class PythonCore:
     """Anytime weighted A* over any ``SearchSpace``, resumable in slices."""
 
@@ -258,7 +270,10 @@ class PythonCore:
         incons = self._incons
         share = self._share_every if fheap is not None else 0
         counter = self._counter
-        goal_set = getattr(space, "goal_set", None)
+        goals = getattr(space, "goal_set", None)
+        if goals is None:
+            goals = _GoalTest(is_goal)
+        ticks = self._ticks
         stored = self.stored
         generated = 0
         done = 0
@@ -267,8 +282,8 @@ class PythonCore:
             while done < n:
                 s = None
                 if share:
-                    self._ticks += 1
-                    if self._ticks % share == 0:
+                    ticks += 1
+                    if ticks % share == 0:
                         picked = self._pop_min_f()
                         if picked is not None:
                             s, g, f = picked
@@ -299,7 +314,7 @@ class PythonCore:
                     gold = g_tab[t]
                     if g2 >= gold * keep:
                         continue
-                    if (t in goal_set) if goal_set is not None else is_goal(t):
+                    if t in goals:
                         path = self._rebuild_path(s, t)
                         self._set_incumbent(min(g2, path.cost), path)
                         cutoff = self._cutoff
@@ -322,8 +337,10 @@ class PythonCore:
                             continue
                         closed[t] = 0
                         self.reopened += 1
-                    key = g2 + w * (guide(t) if guide is not None else ht)
-                    heappush(open_, (key, -g2, counter, t, ht))
+                    if guide is None:
+                        heappush(open_, (g2 + w * ht, -g2, counter, t, ht))
+                    else:
+                        heappush(open_, (g2 + w * guide(t), -g2, counter, t, ht))
                     if fheap is not None:
                         heappush(fheap, (ft, counter, t, g2))
                     counter += 1
@@ -331,6 +348,7 @@ class PythonCore:
                     break
         finally:
             self._counter = counter
+            self._ticks = ticks
             self.stored = stored
             self.expansions += done
             self.generated += generated
