@@ -277,7 +277,9 @@ def init_app(app: Flask, settings: LimitSettings, storage_uri: str,
         storage_options={"socket_connect_timeout": 1, "socket_timeout": 1},
         swallow_errors=True,
         key_prefix="boundwise:rate",
-        strategy="moving-window",
+        # Two counters per key (this window and the last, weighted): smooth like a moving
+        # window, but O(1) in Redis however high the limit.
+        strategy="sliding-window-counter",
         enabled=settings.rate_limits_enabled,
         default_limits=[
             Limit(settings.submit_rate, scope="submit", shared=True, methods=list(WRITE_METHODS),
