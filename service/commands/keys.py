@@ -10,20 +10,16 @@ when nothing matched or Redis cannot be reached, 2 for a bad tenant name.
 from __future__ import annotations
 
 import argparse
-import os
 import sys
 from datetime import datetime, timezone
 from typing import Any
-
-DEFAULT_REDIS_URL = "redis://127.0.0.1:6379/0"
-
 
 def register(sub: Any) -> None:
     """Add the ``keys`` subcommand and its three verbs."""
     p = sub.add_parser("keys", help="create, list or revoke API keys",
                        description="Manage API keys; each key belongs to one tenant.")
     p.add_argument("--redis-url", default=None,
-                   help="Redis holding the keys (default: $REDIS_URL, else " + DEFAULT_REDIS_URL + ")")
+                   help="Redis holding the keys (default: $REDIS_URL, else redis://127.0.0.1:6379/0)")
     verbs = p.add_subparsers(dest="verb", metavar="VERB", required=True)
     create = verbs.add_parser("create", help="make a key for TENANT and print it")
     create.add_argument("tenant", metavar="TENANT")
@@ -43,7 +39,9 @@ def _store(args: argparse.Namespace) -> Any:
 
     from service.auth import KeyStore
 
-    url = args.redis_url or os.environ.get("REDIS_URL") or DEFAULT_REDIS_URL
+    from service.config import load
+
+    url = args.redis_url or load().redis_url  # REDIS_URL, checked like every other setting
     # One quick retry: an operator at a prompt wants the error, not a long wait.
     return KeyStore(redis.Redis.from_url(url, socket_connect_timeout=5, socket_timeout=5,
                                          retry=Retry(NoBackoff(), 1)))
@@ -74,6 +72,8 @@ def _list(args: argparse.Namespace) -> int:
 
     try:
         records = _store(args).list(args.tenant)
+    except ValueError as err:  # a bad setting (service.config.ConfigError names it)
+        return _fail(str(err), 2)
     except redis.RedisError as err:
         return _fail(f"cannot reach Redis: {err}")
     for r in records:
@@ -91,6 +91,8 @@ def _revoke(args: argparse.Namespace) -> int:
         record = _store(args).revoke(args.key)
     except KeyNotFound as err:
         return _fail(str(err))
+    except ValueError as err:  # a bad setting (service.config.ConfigError names it)
+        return _fail(str(err), 2)
     except redis.RedisError as err:
         return _fail(f"cannot reach Redis: {err}")
     sys.stderr.write(f"revoked key {record.key_id} of tenant {record.tenant}\n")

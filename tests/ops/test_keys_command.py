@@ -51,3 +51,10 @@ def test_unreachable_redis_is_a_clear_error(monkeypatch, capsys):
         lambda cls, url, **kw: redis.Redis(host="127.0.0.1", port=1, **kw)))
     assert cli.main(["keys", "list"]) == 1
     assert "cannot reach Redis" in capsys.readouterr().err
+
+
+def test_a_bad_redis_url_setting_is_named(monkeypatch, capsys):
+    monkeypatch.setenv("REDIS_URL", "http://not-redis")
+    for argv in (["keys", "list"], ["keys", "create", "t"], ["keys", "revoke", "abcd"]):
+        assert cli.main(argv) == 2
+        assert "REDIS_URL" in capsys.readouterr().err
