@@ -58,6 +58,11 @@ WRITE_METHODS = ("POST", "PUT", "PATCH", "DELETE")
 READ_METHODS = ("GET", "HEAD")
 
 
+def _default(cls: type, name: str) -> Any:
+    """Return the declared default of a dataclass field (a slotted class has no class attribute for it)."""
+    return next(f.default for f in dataclasses.fields(cls) if f.name == name)
+
+
 @dataclass(frozen=True, slots=True)
 class Caps:
     """The limits of one tenant: jobs at once, the largest budgets, and problem sizes."""
@@ -124,10 +129,10 @@ class LimitSettings:
             return value
 
         base = Caps(
-            max_running_jobs=number("BOUNDWISE_MAX_RUNNING_JOBS", Caps.max_running_jobs),
-            max_time_s=number("BOUNDWISE_MAX_TIME_S", Caps.max_time_s, float),
-            max_expansions=number("BOUNDWISE_MAX_EXPANSIONS", Caps.max_expansions),
-            max_states=number("BOUNDWISE_MAX_STATES", Caps.max_states),
+            max_running_jobs=number("BOUNDWISE_MAX_RUNNING_JOBS", _default(Caps, "max_running_jobs")),
+            max_time_s=number("BOUNDWISE_MAX_TIME_S", _default(Caps, "max_time_s"), float),
+            max_expansions=number("BOUNDWISE_MAX_EXPANSIONS", _default(Caps, "max_expansions")),
+            max_states=number("BOUNDWISE_MAX_STATES", _default(Caps, "max_states")),
         )
         base = base.merged({"sizes": json_object("BOUNDWISE_MAX_SIZES")})
         tenants: dict[str, Caps] = {}
@@ -141,9 +146,9 @@ class LimitSettings:
         enabled = env.get("BOUNDWISE_RATE_LIMITS", "on").strip().lower() not in {"off", "0", "false", "no"}
         return cls(
             rate_limits_enabled=enabled,
-            submit_rate=env.get("BOUNDWISE_RATE_LIMIT_SUBMIT") or cls.submit_rate,
-            read_rate=env.get("BOUNDWISE_RATE_LIMIT_READ") or cls.read_rate,
-            max_body_bytes=number("BOUNDWISE_MAX_BODY_BYTES", cls.max_body_bytes),
+            submit_rate=env.get("BOUNDWISE_RATE_LIMIT_SUBMIT") or _default(cls, "submit_rate"),
+            read_rate=env.get("BOUNDWISE_RATE_LIMIT_READ") or _default(cls, "read_rate"),
+            max_body_bytes=number("BOUNDWISE_MAX_BODY_BYTES", _default(cls, "max_body_bytes")),
             caps=base,
             tenant_caps=tenants,
         )

@@ -184,3 +184,12 @@ def test_every_size_a_built_in_domain_reports_has_a_cap():
         assert set(sizes) <= set(limits.DEFAULT_SIZE_CAPS), (name, sorted(sizes))
         checked += 1
     assert checked >= 4
+
+
+def test_settings_from_an_empty_environment_are_the_declared_defaults():
+    from service.limits import Caps, LimitSettings
+
+    settings = LimitSettings.from_env({})
+    assert settings == LimitSettings(caps=settings.caps)
+    assert (settings.caps.max_running_jobs, settings.caps.max_time_s) == (Caps().max_running_jobs, Caps().max_time_s)
+    assert isinstance(settings.max_body_bytes, int) and settings.submit_rate == "60/minute"
