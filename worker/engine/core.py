@@ -35,6 +35,7 @@ import math
 from array import array
 from typing import Any
 
+from worker.engine.paths import rebuild_path
 from worker.engine.types import Path, SearchConfig, StepStatus
 from worker.exceptions import SearchError
 
@@ -191,19 +192,7 @@ class PythonCore:
                 raise SearchError("broken parent chain while rebuilding a plan")
             chain.append(s)
         chain.reverse()
-        actions: list[Any] = []
-        costs: list[float] = []
-        succ = self.space.successors
-        for a_state, b_state in zip(chain, chain[1:]):
-            best: tuple[float, Any] | None = None
-            for u, c, act in succ(a_state):
-                if u == b_state and (best is None or c < best[0]):
-                    best = (float(c), act)
-            if best is None:
-                raise SearchError("plan step not among the successors while rebuilding a plan")
-            costs.append(best[0])
-            actions.append(best[1])
-        return Path(tuple(chain), tuple(actions), tuple(costs))
+        return rebuild_path(self.space, chain)
 
     def _after_improvement(self) -> None:
         if self._fheap is None:

@@ -20,7 +20,7 @@ from worker.engine.kernels._heap cimport (
 )
 from worker.engine.kernels._incons cimport incons_add, incons_at, incons_clear, incons_has, incons_remove
 
-from worker.engine.kernels.paths import rebuild_path
+from worker.engine.paths import rebuild_path
 from worker.engine.types import Path, StepStatus
 from worker.exceptions import SearchError
 

@@ -12,8 +12,8 @@ from worker.exceptions import SearchError
 def rebuild_path(space: Any, chain: Sequence[Any]) -> Path:
     """Return the ``Path`` along ``chain``, taking the cheapest action between each pair of states.
 
-    Done exactly as the pure-Python core does it, so that a compiled core
-    reports the same actions, step costs and plan cost.
+    Both the pure-Python core and the compiled cores rebuild plans with it,
+    so they report the same actions, step costs and plan cost.
     """
     actions: list[Any] = []
     costs: list[float] = []
