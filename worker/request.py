@@ -4,7 +4,7 @@
 
     {
       "problem": {"domain": "grid", ...domain fields...},
-      "search":  {"weight": 2.0, "schedule": "fixed", "reopen": "reopen", "bound_share": 0.1},
+      "search":  {"weight": 2.0, "schedule": "decreasing", "reopen": "reopen", "bound_share": 0.1},
       "budget":  {"time_s": 5, "expansions": 1000000, "max_states": 2000000,
                   "target_bound": 1.0, "deadline": "2026-12-02T10:00:00Z"},
       "queue":   "default",
@@ -37,7 +37,7 @@ __all__ = ["JobRequest", "parse_request", "SearchSchema", "BudgetSchema", "JobRe
 
 class SearchSchema(StrictSchema):
     weight = StrictFloat(load_default=2.0, validate=validate.Range(min=1.0, max=1000.0))
-    schedule = fields.String(load_default="fixed", validate=validate.OneOf(["fixed", "decreasing"]))
+    schedule = fields.String(load_default="decreasing", validate=validate.OneOf(["fixed", "decreasing"]))
     weight_step = StrictFloat(load_default=0.5, validate=validate.Range(min=0.0, min_inclusive=False))
     reopen = fields.String(load_default="reopen", validate=validate.OneOf(["reopen", "defer"]))
     bound_share = StrictFloat(load_default=0.1, validate=validate.Range(min=0.0, max=0.9))

@@ -44,7 +44,7 @@ class SearchConfig:
     """
 
     weight: float = 2.0
-    schedule: str = "fixed"
+    schedule: str = "decreasing"
     weight_step: float = 0.5
     reopen: str = "reopen"
     bound_share: float = 0.1
