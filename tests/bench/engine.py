@@ -114,11 +114,13 @@ def bench_grid(n: int) -> None:
     print(f"grid {small}x{small} whole search: boundwise {t_s:.3f} s, textbook {t_tb_s:.3f} s, "
           f"networkx astar {t_nx:.3f} s; ratio networkx/boundwise {t_nx / t_s:.2f}")
 
-    print("\n-- proving optimality after a weight-2 first plan (same grid), reopen vs defer --")
-    for policy in ("reopen", "defer"):
+    print("\n-- proving optimality after a weight-2 first plan (same grid): schedule x reopening policy --")
+    for schedule, policy in (("fixed", "reopen"), ("fixed", "defer"), ("decreasing", "reopen"),
+                             ("decreasing", "defer")):
         space = grid_space(rows, start, goal)
-        (imps, fin), t = timed(lambda: solve(space, SearchConfig(weight=2.0, reopen=policy, bound_share=0.1)))
-        print(f"{policy:8} plans {len(imps):3d}  first plan after {imps[0].counters.expansions:9d} exp  "
+        cfg = SearchConfig(weight=2.0, schedule=schedule, reopen=policy, bound_share=0.1)
+        (imps, fin), t = timed(lambda: solve(space, cfg))
+        print(f"{schedule:10} {policy:7} plans {len(imps):3d}  first plan after {imps[0].counters.expansions:9d} exp  "
               f"proof after {fin.counters.expansions:9d} exp, {fin.counters.reopened:9d} reopened, {t:6.2f} s, "
               f"optimal={fin.proven_optimal}")
 
@@ -204,7 +206,7 @@ def bench_anytime(expansions: int) -> None:
           f"{expansions} expansions ==")
     print(f"{'weight':>7}{'share':>7}{'schedule':>11}{'plans':>6}{'best':>6}{'L':>8}{'bound':>8}{'seconds':>9}")
     for weight, share, schedule in ((2.0, 0.0, "fixed"), (2.0, 0.1, "fixed"), (2.0, 0.3, "fixed"),
-                                    (3.0, 0.1, "decreasing")):
+                                    (2.0, 0.1, "decreasing"), (3.0, 0.1, "decreasing")):
         space = parse_request({"problem": {"domain": "sliding-tile", "width": 4, "height": 4,
                                            "tiles": tiles}}).space
         (imps, fin), t = timed(lambda: solve(space, SearchConfig(weight=weight, bound_share=share,
