@@ -30,32 +30,37 @@ ENTRY_POINT_GROUP = "boundwise.domains"
 
 # Built-ins are listed here too, so a source checkout that was never installed
 # still has them; modules that are not there yet are skipped.
-_BUILTINS = (
-    "worker.domains.grid",
-    "worker.domains.tiles",
-    "worker.domains.graph",
-    "worker.domains.sequencing",
-    "worker.domains.strips",
-    "worker.domains.pddl",
-)
+_BUILTINS = {
+    "grid": "worker.domains.grid",
+    "sliding-tile": "worker.domains.tiles",
+    "graph": "worker.domains.graph",
+    "sequencing": "worker.domains.sequencing",
+    "strips": "worker.domains.strips",
+    "pddl": "worker.domains.pddl",
+}
+
+
+def _load_builtin(modname: str) -> DomainKind | None:
+    try:
+        module = importlib.import_module(modname)
+    except ModuleNotFoundError as err:
+        if err.name != modname:
+            raise
+        return None
+    kind = getattr(module, "KIND", None)
+    return kind if isinstance(kind, DomainKind) else None
 
 
 @lru_cache(maxsize=1)
 def kinds() -> dict[str, DomainKind]:
     """Return every registered domain kind by name (built-ins first, then entry points)."""
     found: dict[str, DomainKind] = {}
-    for modname in _BUILTINS:
-        try:
-            module = importlib.import_module(modname)
-        except ModuleNotFoundError as err:
-            if err.name != modname:
-                raise
-            continue
-        kind = getattr(module, "KIND", None)
-        if isinstance(kind, DomainKind):
+    for modname in _BUILTINS.values():
+        kind = _load_builtin(modname)
+        if kind is not None:
             found[kind.name] = kind
     for ep in entry_points(group=ENTRY_POINT_GROUP):
-        if ep.name in found or ep.module in _BUILTINS:
+        if ep.name in found or ep.module in _BUILTINS.values():
             continue
         try:
             kind = ep.load()
@@ -70,7 +75,15 @@ def kinds() -> dict[str, DomainKind]:
 
 
 def get(name: str) -> DomainKind:
-    """Return the domain kind called ``name`` or raise UnknownDomainError."""
+    """Return the domain kind called ``name`` or raise UnknownDomainError.
+
+    A built-in is imported alone, so a process that solves one kind of
+    problem does not load the others.
+    """
+    if name in _BUILTINS and kinds.cache_info().currsize == 0:
+        kind = _load_builtin(_BUILTINS[name])
+        if kind is not None and kind.name == name:
+            return kind
     try:
         return kinds()[name]
     except KeyError:
