@@ -218,12 +218,17 @@ def bench_anytime(expansions: int) -> None:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
-    ap.add_argument("--quick", action="store_true")
+    ap.add_argument("--quick", action="store_true", help="a 256x256 grid and fewer, shorter Korf runs")
+    ap.add_argument("--grid", type=int, default=None, help="grid side (default 1024, 256 with --quick)")
+    ap.add_argument("--korf", type=int, default=None, help="Korf instances (default 6, 3 with --quick)")
+    ap.add_argument("--expansions", type=int, default=None,
+                    help="expansions cap per Korf run (default 300000, 100000 with --quick)")
     args = ap.parse_args()
     print(f"python {sys.version.split()[0]}, core {PythonCore.__module__}")
-    bench_grid(256 if args.quick else 1024)
-    bench_korf(3 if args.quick else 8, 200_000 if args.quick else 1_000_000)
-    bench_anytime(200_000 if args.quick else 1_000_000)
+    bench_grid(args.grid or (256 if args.quick else 1024))
+    cap = args.expansions or (100_000 if args.quick else 300_000)
+    bench_korf(args.korf or (3 if args.quick else 6), cap)
+    bench_anytime(cap)
 
 
 if __name__ == "__main__":
