@@ -37,7 +37,7 @@ def big_job(time_s: float, retries: int = 1) -> dict:
     n = 1000
     return {"problem": {"domain": "grid", "rows": warehouse_floor(n, 3, 0.32), "moves": 8,
                         "start": [n - 1, 0], "goals": [[0, n - 1]]},
-            "search": {"weight": 3.0}, "budget": {"time_s": time_s}, "retries": retries}
+            "search": {"weight": 3.0, "schedule": "fixed"}, "budget": {"time_s": time_s}, "retries": retries}
 
 
 SMALL = {"problem": {"domain": "grid", "rows": ["....", ".##.", "...."], "moves": 4, "start": [2, 0],

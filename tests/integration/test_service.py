@@ -29,10 +29,10 @@ FINAL = {"optimal", "bounded", "infeasible", "cancelled", "failed", "lost"}
 
 
 def busy_floor_job(**extra) -> dict:
-    """A 400 x 400 floor with weight 5: a first plan in a blink, then seconds of better ones."""
+    """A 400 x 400 floor with a fixed weight 5: a first plan in a blink, then seconds of better ones."""
     rows = random_floor(400, seed=1, blocked=0.25)
     return {"problem": {"domain": "grid", "rows": rows, "start": [0, 0], "goals": [[399, 399]]},
-            "search": {"weight": 5.0}, "budget": {"time_s": 30}, **extra}
+            "search": {"weight": 5.0, "schedule": "fixed"}, "budget": {"time_s": 30}, **extra}
 
 
 SMALL = {"problem": {"domain": "grid", "rows": ["....", ".##.", "...."], "moves": 4, "start": [2, 0],
@@ -85,7 +85,7 @@ def test_a_sliding_tile_job_brackets_the_published_optimum(stack, datasets):
     # the data set's goal (blank top left, tile v in cell v) is the domain's default goal.
     optimal = int(row["optimal_length"])
     tiles = [int(t) for t in row["tiles"].split()]
-    out = _submit(stack, {"problem": {"domain": "sliding-tile", "tiles": tiles}, "search": {"weight": 3.0},
+    out = _submit(stack, {"problem": {"domain": "sliding-tile", "tiles": tiles}, "search": {"weight": 3.0, "schedule": "fixed"},
                           "budget": {"time_s": 4}})
     done = stack.wait_job(out["id"], lambda d: d["status"] in FINAL, 60, "the puzzle job to end")
     assert done["status"] in ("bounded", "optimal") and done["best"] is not None
