@@ -2,8 +2,11 @@
 
 Run by hand (not collected by the test command)::
 
-    python3 tests/bench/engine.py            # grid 1024x1024 and Korf instances
-    python3 tests/bench/engine.py --quick    # smaller grid, fewer instances
+    BOUNDWISE_PURE_PYTHON=1 python3 tests/bench/engine.py            # grid 1024x1024, Korf instances
+    BOUNDWISE_PURE_PYTHON=1 python3 tests/bench/engine.py --quick    # smaller grid, fewer instances
+
+This measures the pure-Python engine (without the variable, spaces that have
+a compiled kernel use it; ``tests/bench/kernels.py`` compares the two).
 
 Prints, side by side: our engine (weight 1, plain A*), a textbook heapq A*
 (tuple states, dict g-values) and networkx's A* (on a smaller grid: building a
@@ -28,7 +31,6 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
 from tests.bench.reference import SQRT2, grid_textbook, random_grid  # noqa: E402
 from worker.engine import Budget, SearchConfig, solve  # noqa: E402
-from worker.engine.core import PythonCore  # noqa: E402
 from worker.request import parse_request  # noqa: E402
 
 DATASETS = Path(os.environ.get("BOUNDWISE_DATASETS", Path(__file__).resolve().parents[3] / "shared" / "datasets"))
@@ -224,7 +226,9 @@ def main() -> None:
     ap.add_argument("--expansions", type=int, default=None,
                     help="expansions cap per Korf run (default 300000, 100000 with --quick)")
     args = ap.parse_args()
-    print(f"python {sys.version.split()[0]}, core {PythonCore.__module__}")
+    from worker.engine import kernels
+
+    print(f"python {sys.version.split()[0]}, search backend {kernels.BACKEND}")
     bench_grid(args.grid or (256 if args.quick else 1024))
     cap = args.expansions or (100_000 if args.quick else 300_000)
     bench_korf(args.korf or (3 if args.quick else 6), cap)
