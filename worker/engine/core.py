@@ -21,7 +21,8 @@ Semantics (a compiled core must reproduce them exactly):
   next weight change or when open runs empty;
 - the lower bound L = min(incumbent, min g + h over OPEN and INCONS) comes from
   a second, f-ordered heap with lazy deletion, heapified once when the first
-  plan arrives (before that, ``lower_bound()`` scans open);
+  plan arrives (before that, ``lower_bound()`` scans open, or builds the heap
+  early once open outgrows a scan);
 - once a plan exists, every k-th expansion (k = round(1/bound_share)) takes the
   open node of least g + h, which is what raises L under a large weight;
 - schedule "decreasing": after each improvement w := max(1, w - weight_step),
@@ -40,6 +41,9 @@ from worker.engine.types import Path, SearchConfig, StepStatus
 from worker.exceptions import SearchError
 
 INF = math.inf
+# Before the first plan, L is found by scanning the open list while it is at
+# most this long; past it the f-ordered heap is built and kept instead.
+_SCAN_LIMIT = 100_000
 
 
 class _DefaultDict(dict):
@@ -137,7 +141,12 @@ class PythonCore:
             return self.incumbent
         fheap = self._fheap
         if fheap is None:
-            return min(self.incumbent, self._scan_open_min_f())
+            if len(self._open) <= _SCAN_LIMIT:
+                return min(self.incumbent, self._scan_open_min_f())
+            # A long wait for the first plan: keep the f-heap from now on
+            # rather than scan a huge open list at every report.
+            self._build_fheap()
+            fheap = self._fheap
         g, closed, incons = self._g, self._closed, self._incons
         while fheap:
             f, _, s, gs = fheap[0]
@@ -194,15 +203,19 @@ class PythonCore:
         chain.reverse()
         return rebuild_path(self.space, chain)
 
+    def _build_fheap(self) -> None:
+        """Heapify the live OPEN and INCONS entries by g + h, once; pushes keep it current."""
+        g, closed = self._g, self._closed
+        fheap = [(h - ng, c, s, -ng) for _, ng, c, s, h in self._open if not closed[s] and -ng <= g[s]]
+        for s, h in self._incons.items():
+            fheap.append((g[s] + h, self._counter, s, g[s]))
+            self._counter += 1
+        heapq.heapify(fheap)
+        self._fheap = fheap
+
     def _after_improvement(self) -> None:
         if self._fheap is None:
-            g, closed = self._g, self._closed
-            fheap = [(h - ng, c, s, -ng) for _, ng, c, s, h in self._open if not closed[s] and -ng <= g[s]]
-            for s, h in self._incons.items():
-                fheap.append((g[s] + h, self._counter, s, g[s]))
-                self._counter += 1
-            heapq.heapify(fheap)
-            self._fheap = fheap
+            self._build_fheap()
         cfg = self.config
         if cfg.schedule == "decreasing" and self.weight > 1.0:
             self._reweight(max(1.0, self.weight - cfg.weight_step))
@@ -257,7 +270,7 @@ class PythonCore:
         fheap = self._fheap
         defer = self.config.reopen == "defer"
         incons = self._incons
-        share = self._share_every if fheap is not None else 0
+        share = self._share_every if self.incumbent < INF else 0
         counter = self._counter
         goals = getattr(space, "goal_set", None)
         if goals is None:

@@ -129,3 +129,22 @@ def test_defer_policy_merges_incons_when_open_runs_empty():
         assert fin.cost == pytest.approx(opt)  # source: networkx Dijkstra
         merged += fin.counters.expansions > 40
     assert merged > 0, "some instance re-expanded deferred states"
+
+
+def test_early_lower_bound_heap_gives_the_same_search(monkeypatch):
+    # With a tiny scan limit the f-heap is built before the first plan; the
+    # search and every reported bound must not change.
+    from worker.engine import core
+
+    def run(limit):
+        monkeypatch.setattr(core, "_SCAN_LIMIT", limit)
+        results = []
+        rng = random.Random(5)
+        for _ in range(25):
+            space, opt, _ = random_instance(rng, 30, 0.15, "inconsistent")
+            events = list(search(space, SearchConfig(weight=3.0), progress_every_s=0.0))
+            results.append([(type(e).__name__, getattr(e, "cost", None), e.lower_bound, e.counters.expansions)
+                            for e in events])
+        return results
+
+    assert run(0) == run(10**9)
