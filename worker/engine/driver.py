@@ -135,7 +135,7 @@ def search(
             break
         if now - last_progress >= progress_every_s:
             last_progress = now
-            # Before the first plan this scans the open list: fine every half second.
+            # Before the first plan this may scan the open list: fine every half second.
             lower = max(lower, core.lower_bound())
             yield Progress(
                 cost=cost,
