@@ -22,24 +22,15 @@ import math
 from collections.abc import Sequence
 
 from worker.heuristics.hmax import UNREACHED
-from worker.heuristics.relaxed import RelaxedTask, state_facts
-from worker.heuristics.task import GroundTask
+from worker.heuristics.relaxed import RelaxedEstimate
 
 __all__ = ["HFF"]
 
 
-class HFF:
+class HFF(RelaxedEstimate):
     """The cost-sensitive relaxed-plan estimate of one task; call it on a bitset state."""
 
     name = "hff"
-
-    def __init__(self, task: GroundTask, relaxed: RelaxedTask | None = None) -> None:
-        self.task = task
-        self.relaxed = relaxed or RelaxedTask.from_task(task)
-
-    def __call__(self, state: int) -> float:
-        """Return the relaxed plan's cost for ``state`` (``inf`` when the goal is unreachable)."""
-        return self.of_facts(state_facts(state))
 
     def of_facts(self, facts: Sequence[int]) -> float:
         """Return the relaxed plan's cost for the state whose true facts are ``facts``."""

@@ -23,8 +23,7 @@ import heapq
 import math
 from collections.abc import Sequence
 
-from worker.heuristics.relaxed import RelaxedTask, state_facts
-from worker.heuristics.task import GroundTask
+from worker.heuristics.relaxed import RelaxedEstimate
 
 __all__ = ["HMax", "UNREACHED"]
 
@@ -32,18 +31,10 @@ __all__ = ["HMax", "UNREACHED"]
 UNREACHED = 1 << 62
 
 
-class HMax:
+class HMax(RelaxedEstimate):
     """The h_max heuristic of one task; call it on a bitset state."""
 
     name = "hmax"
-
-    def __init__(self, task: GroundTask, relaxed: RelaxedTask | None = None) -> None:
-        self.task = task
-        self.relaxed = relaxed or RelaxedTask.from_task(task)
-
-    def __call__(self, state: int) -> float:
-        """Return h_max of ``state`` in real cost units (``inf`` when the goal is unreachable)."""
-        return self.of_facts(state_facts(state))
 
     def of_facts(self, facts: Sequence[int]) -> float:
         """Return h_max of the state whose true facts are ``facts``."""

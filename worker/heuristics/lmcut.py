@@ -33,25 +33,20 @@ import math
 from collections.abc import Sequence
 
 from worker.heuristics.hmax import UNREACHED, HMax
-from worker.heuristics.relaxed import RelaxedTask, state_facts
+from worker.heuristics.relaxed import RelaxedEstimate, RelaxedTask
 from worker.heuristics.task import GroundTask
 
 __all__ = ["LMCut"]
 
 
-class LMCut:
+class LMCut(RelaxedEstimate):
     """The LM-cut heuristic of one task; call it on a bitset state."""
 
     name = "lmcut"
 
     def __init__(self, task: GroundTask, relaxed: RelaxedTask | None = None) -> None:
-        self.task = task
-        self.relaxed = relaxed or RelaxedTask.from_task(task)
+        super().__init__(task, relaxed)
         self._hmax = HMax(task, self.relaxed)
-
-    def __call__(self, state: int) -> float:
-        """Return LM-cut of ``state`` in real cost units (``inf`` when the goal is unreachable)."""
-        return self.of_facts(state_facts(state))
 
     def of_facts(self, facts: Sequence[int]) -> float:
         """Return LM-cut of the state whose true facts are ``facts``."""

@@ -17,6 +17,7 @@ Two artificial facts make every heuristic loop uniform:
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, replace
 
 from worker.heuristics.task import GroundAction, GroundTask
@@ -134,3 +135,26 @@ def state_facts(state: int) -> list[int]:
         append(low.bit_length() - 1)
         state ^= low
     return out
+
+
+class RelaxedEstimate:
+    """Base of the delete-relaxation estimates: holds the task, answers on a bitset state.
+
+    A subclass gives ``name`` and ``of_facts(facts)``; calling the estimate on a
+    bitset state applies ``of_facts`` to its true facts.
+    """
+
+    name = "relaxed"
+
+    def __init__(self, task: GroundTask, relaxed: RelaxedTask | None = None) -> None:
+        self.task = task
+        self.relaxed = relaxed or RelaxedTask.from_task(task)
+
+    def __call__(self, state: int) -> float:
+        """Return the estimate of ``state`` in real cost units (``inf`` when the goal is unreachable)."""
+        return self.of_facts(state_facts(state))
+
+    def of_facts(self, facts: Sequence[int]) -> float:
+        """Return the estimate of the state whose true facts are ``facts``."""
+        raise NotImplementedError
+
