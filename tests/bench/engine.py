@@ -19,17 +19,15 @@ from __future__ import annotations
 
 import argparse
 import csv
-import gc
 import math
 import os
 import sys
 import time
-import tracemalloc
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from tests.bench.reference import SQRT2, grid_textbook, random_grid  # noqa: E402
+from tests.bench.reference import SQRT2, grid_textbook, peak_bytes, random_grid, timed  # noqa: E402
 from worker.engine import Budget, SearchConfig, solve  # noqa: E402
 from worker.request import parse_request  # noqa: E402
 
@@ -39,22 +37,6 @@ DATASETS = Path(os.environ.get("BOUNDWISE_DATASETS", Path(__file__).resolve().pa
 def grid_space(rows, start, goal, **search):
     doc = {"problem": {"domain": "grid", "rows": rows, "start": list(start), "goals": [list(goal)]}}
     return parse_request(doc).space
-
-
-def timed(fn):
-    gc.collect()
-    t0 = time.perf_counter()
-    out = fn()
-    return out, time.perf_counter() - t0
-
-
-def peak_bytes(fn):
-    gc.collect()
-    tracemalloc.start()
-    out = fn()
-    _, peak = tracemalloc.get_traced_memory()
-    tracemalloc.stop()
-    return out, peak
 
 
 def bench_grid(n: int) -> None:

@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import argparse
 import csv
-import gc
 import itertools
 import json
 import math
@@ -28,13 +27,12 @@ import subprocess
 import sys
 import tempfile
 import time
-import tracemalloc
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[2]
 sys.path.insert(0, str(ROOT))
 
-from tests.bench.reference import grid_textbook, random_grid, textbook_astar  # noqa: E402
+from tests.bench.reference import grid_textbook, peak_bytes, random_grid, textbook_astar, timed  # noqa: E402
 from worker.engine import Budget, SearchConfig, kernels, solve  # noqa: E402
 from worker.engine.core import PythonCore  # noqa: E402
 from worker.request import parse_request  # noqa: E402
@@ -44,22 +42,6 @@ SEED = 20261202
 ASTAR = SearchConfig(weight=1.0, bound_share=0.0)
 # Instances the compiled A* proves in seconds, from easy to a few million expansions.
 PROOF_IDS = [12, 42, 79, 9, 13, 6, 16, 5, 11, 8, 4, 2, 10]
-
-
-def timed(fn):
-    gc.collect()
-    t0 = time.perf_counter()
-    out = fn()
-    return out, time.perf_counter() - t0
-
-
-def peak_bytes(fn):
-    gc.collect()
-    tracemalloc.start()
-    out = fn()
-    peak = tracemalloc.get_traced_memory()[1]
-    tracemalloc.stop()
-    return out, peak
 
 
 def row(name, cost, expansions, seconds, rate, ref_rate, per_state):

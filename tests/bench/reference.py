@@ -1,11 +1,14 @@
-"""Reference searches for the benchmarks: a textbook heapq A* with tuple states and dict g-values."""
+"""Shared benchmark pieces: a textbook heapq A* (tuple states, dict g-values), seeded grids, timers."""
 
 from __future__ import annotations
 
+import gc
 import heapq
 import itertools
 import math
 import random
+import time
+import tracemalloc
 from collections.abc import Callable, Hashable, Iterable
 
 SQRT2 = math.sqrt(2.0)
@@ -70,3 +73,21 @@ def grid_textbook(rows: list[str], start: tuple[int, int], goal: tuple[int, int]
         return max(dr, dc) + (SQRT2 - 1.0) * min(dr, dc)
 
     return textbook_astar(start, lambda s: s == goal, successors, h)
+
+
+def timed(fn):
+    """Return ``(fn(), seconds)``, collecting garbage first."""
+    gc.collect()
+    t0 = time.perf_counter()
+    out = fn()
+    return out, time.perf_counter() - t0
+
+
+def peak_bytes(fn):
+    """Return ``(fn(), peak bytes allocated while it ran)`` as tracemalloc sees them."""
+    gc.collect()
+    tracemalloc.start()
+    out = fn()
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
+    return out, peak
